@@ -1,0 +1,153 @@
+"""Command line: a thin layer over the Python API.
+
+Exit codes: 0 success; 1 blocking findings in the results or an internal
+error; 2 bad input (message printed, nothing written).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import CompilerError, InputError
+
+EXIT_OK, EXIT_FINDINGS, EXIT_INPUT = 0, 1, 2
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="histosol", description="Greenhouse-gas inventory of drained and rewetted "
+                                "organic soils (IPCC Tier 1 defaults with documented overrides).")
+    p.add_argument("--version", action="version", version=f"histosol {__version__}")
+    p.add_argument("--traceback", action="store_true", help="show the Python traceback of an internal error")
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    d = sub.add_parser("demo", help="compile the bundled invented demo region and write every output")
+    d.add_argument("--out", default="demo-output", help="output folder (default: demo-output)")
+    d.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
+    c = sub.add_parser("compile", help="compile an inventory from its settings file")
+    c.add_argument("settings", help="settings file (TOML)")
+    c.add_argument("--out", default="output", help="output folder (default: output)")
+    c.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
+    k = sub.add_parser("check", help="validate all inputs and print every finding; writes nothing")
+    k.add_argument("settings", help="settings file (TOML)")
+
+    f = sub.add_parser("factors", help="print the factor register")
+    f.add_argument("--factor-set", choices=["ipcc2013ws", "ipcc2006"], help="only this factor set")
+    f.add_argument("--quantity", help="only this quantity (e.g. ef_co2_c_onsite)")
+    f.add_argument("--climate-zone", help="only rows for this climate zone (rows that apply to any zone included)")
+    f.add_argument("--land-use", help="only rows for this land use (rows that apply to any land use included)")
+    f.add_argument("--soil-status", choices=["drained", "rewetted"], help="only drained or rewetted rows")
+    f.add_argument("--csv", action="store_true", help="print CSV instead of a table")
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = _parser().parse_args(argv)
+    try:
+        return _run(args)
+    except CompilerError as exc:
+        print(str(exc), file=sys.stderr)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        print("interrupted; nothing was written", file=sys.stderr)
+        return 130
+    except Exception as exc:  # the last guard: no traceback for the user unless asked
+        if args.traceback:
+            raise
+        print(f"internal error: {type(exc).__name__}: {exc}\nnothing was written; rerun with --traceback and "
+              "report it with the inputs that caused it", file=sys.stderr)
+        return EXIT_FINDINGS
+
+
+def _run(args) -> int:
+    if args.command == "factors":
+        return _factors(args)
+    if args.command == "check":
+        return _check(Path(args.settings))
+    if args.command == "demo":
+        from .resources import resource_dir
+
+        settings = resource_dir("examples") / "demo" / "inventory.toml"
+    else:
+        settings = Path(args.settings)
+    return _compile(settings, Path(args.out), args.quiet)
+
+
+def _compile(settings: Path, out: Path, quiet: bool) -> int:
+    from .pipeline import compile_inventory
+
+    result = compile_inventory(settings)
+    folder = result.write(out)
+    if not quiet:
+        _print_summary(result, folder)
+    return EXIT_OK
+
+
+def _print_summary(result, folder: Path) -> None:
+    s = result.settings
+    cats = result.categories
+    est = cats[cats["notation_key"] == ""]
+    totals = est.groupby("year")["co2eq_t"].sum() / 1000
+    counts = result.findings["severity"].value_counts()
+    print(f"{s.name}: {s.first_year}-{s.last_year}, factor set {s.factor_set}, GWP100 {s.gwp}")
+    print(f"  net emissions {s.first_year}: {totals.get(s.first_year, 0.0):,.1f} kt CO2-eq; "
+          f"{s.last_year}: {totals.get(s.last_year, 0.0):,.1f} kt CO2-eq")
+    print(f"  {len(result.activity)} activity rows, {len(result.emissions)} result rows, "
+          f"{len(result.factors_used)} factors used")
+    print(f"  findings: {counts.get('warning', 0)} warnings, {counts.get('info', 0)} notes "
+          "(see the findings sheet)")
+    for f in result.finding_list:
+        if f.severity == "warning":
+            print(f"  {f.render()}")
+    print(f"  wrote {folder}")
+
+
+def _check(settings: Path) -> int:
+    from .pipeline import check_inventory
+
+    findings = check_inventory(settings)
+    for f in findings:
+        print(f.render())
+    errors = sum(f.severity == "error" for f in findings)
+    warnings = sum(f.severity == "warning" for f in findings)
+    print(f"{errors} errors, {warnings} warnings, {len(findings) - errors - warnings} notes")
+    return EXIT_INPUT if errors else EXIT_OK
+
+
+def _factors(args) -> int:
+    import pandas as pd
+
+    from .factors import load_library
+
+    reg = load_library().register
+    if args.factor_set:
+        reg = reg[reg["factor_set"] == args.factor_set]
+    if args.quantity:
+        reg = reg[reg["quantity"] == args.quantity]
+    for column, value in (("climate_zone", args.climate_zone), ("land_use", args.land_use),
+                          ("soil_status", args.soil_status)):
+        if value:
+            reg = reg[(reg[column] == value) | (reg[column] == "")]
+    cols = ["factor_id", "quantity", "value", "unit", "ci_low", "ci_high", "table", "verification", "row_label"]
+    if reg.empty:
+        raise InputError("no factor matches these filters")
+    if args.csv:
+        sys.stdout.write(reg[cols + ["citation"]].to_csv(index=False, lineterminator="\n"))
+        return EXIT_OK
+    view = reg[cols].copy()
+    view["95% interval"] = [("" if pd.isna(lo) else f"{lo:g} to {hi:g}") for lo, hi in zip(view["ci_low"], view["ci_high"])]
+    view["value"] = view["value"].map(lambda v: f"{v:g}")
+    view = view[["factor_id", "quantity", "value", "unit", "95% interval", "table", "verification", "row_label"]]
+    with pd.option_context("display.max_rows", None, "display.width", 250, "display.max_colwidth", 60):
+        print(view.to_string(index=False))
+    n_mem = int((reg["verification"] == "from_memory").sum())
+    print(f"\n{len(reg)} factors; {n_mem} marked from_memory (not yet checked against the published table).")
+    return EXIT_OK
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,133 @@
+"""The published equations, one small vectorised function each.
+
+Arrays in, arrays out; no lookups, no I/O. Units are in the parameter names
+or docstrings. The assembly of strata and factors is in
+:mod:`compiler.engine`.
+
+References
+----------
+.. [WS2013] IPCC (2014). 2013 Supplement to the 2006 IPCC Guidelines for
+   National Greenhouse Gas Inventories: Wetlands. Chapter 2 (Drained Inland
+   Organic Soils) and Chapter 3 (Rewetted Organic Soils).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+
+def onsite_co2_c(area_ha, ef_t_co2_c_per_ha):
+    """On-site CO2-C emission of drained or rewetted organic soil [t CO2-C yr-1].
+
+    Parameters
+    ----------
+    area_ha : array_like
+        Area of organic soil in the stratum [ha].
+    ef_t_co2_c_per_ha : array_like
+        Emission factor [t CO2-C ha-1 yr-1] (negative for a removal).
+
+    Notes
+    -----
+    Eq. 2.3 in [WS2013] (drained, Table 2.1 factors); the same product for
+    rewetted soils with Table 3.1 factors (Chapter 3).
+    """
+    return np.asarray(area_ha, dtype=float) * np.asarray(ef_t_co2_c_per_ha, dtype=float)
+
+
+def doc_co2_c(area_ha, ef_doc_t_co2_c_per_ha):
+    """Off-site CO2-C from dissolved organic carbon exported by water [t CO2-C yr-1].
+
+    Notes
+    -----
+    Eq. 2.4 in [WS2013]: CO2-DOC = A x EF_DOC (Table 2.2 drained, Table 3.2
+    rewetted).
+    """
+    return np.asarray(area_ha, dtype=float) * np.asarray(ef_doc_t_co2_c_per_ha, dtype=float)
+
+
+def doc_emission_factor(doc_flux_natural_t_c_per_ha, delta_doc, frac_doc_co2):
+    """Emission factor for off-site CO2 from DOC [t CO2-C ha-1 yr-1].
+
+    Parameters
+    ----------
+    doc_flux_natural_t_c_per_ha : array_like
+        DOC flux of undrained organic soil [t C ha-1 yr-1].
+    delta_doc : array_like
+        Proportional increase of the DOC flux caused by drainage [fraction];
+        0 for rewetted soils.
+    frac_doc_co2 : array_like
+        Fraction of DOC converted to CO2 downstream [fraction].
+
+    Notes
+    -----
+    Eq. 2.5 in [WS2013]: EF_DOC = DOC_FLUX_NATURAL x (1 + dDOC_DRAINAGE) x Frac_DOC-CO2.
+    """
+    return (np.asarray(doc_flux_natural_t_c_per_ha, dtype=float) * (1.0 + np.asarray(delta_doc, dtype=float))
+            * np.asarray(frac_doc_co2, dtype=float))
+
+
+def ch4_land(area_ha, frac_ditch, ef_ch4_land_kg_per_ha):
+    """CH4 from the land surface of drained organic soil, ditches excluded [kg CH4 yr-1].
+
+    Notes
+    -----
+    First term of Eq. 2.6 in [WS2013]: A x (1 - Frac_ditch) x EF_CH4_land.
+    With ``frac_ditch = 0`` this is the whole-area CH4 of rewetted soils
+    (Chapter 3, Table 3.3), after the CH4-C -> CH4 conversion of the caller.
+    """
+    return (np.asarray(area_ha, dtype=float) * (1.0 - np.asarray(frac_ditch, dtype=float))
+            * np.asarray(ef_ch4_land_kg_per_ha, dtype=float))
+
+
+def ch4_ditch(area_ha, frac_ditch, ef_ch4_ditch_kg_per_ha_ditch):
+    """CH4 from drainage ditches [kg CH4 yr-1].
+
+    Parameters
+    ----------
+    area_ha : array_like
+        Total drained area of the stratum, ditches included [ha].
+    frac_ditch : array_like
+        Fraction of that area occupied by ditches [fraction].
+    ef_ch4_ditch_kg_per_ha_ditch : array_like
+        Emission factor per ha of ditch surface [kg CH4 ha-1 yr-1].
+
+    Notes
+    -----
+    Second term of Eq. 2.6 in [WS2013]: A x Frac_ditch x EF_CH4_ditch.
+    """
+    return (np.asarray(area_ha, dtype=float) * np.asarray(frac_ditch, dtype=float)
+            * np.asarray(ef_ch4_ditch_kg_per_ha_ditch, dtype=float))
+
+
+def n2o_n(area_ha, ef_kg_n2o_n_per_ha):
+    """Direct N2O-N from drained organic soil [kg N2O-N yr-1].
+
+    Notes
+    -----
+    Eq. 2.7 in [WS2013]: N2O-N = A x EF_N2O (Table 2.5); the F_OS term of
+    2006 IPCC Guidelines Vol. 4 Eq. 11.1 with Table 11.1 factors.
+    """
+    return np.asarray(area_ha, dtype=float) * np.asarray(ef_kg_n2o_n_per_ha, dtype=float)
+
+
+def fire_emission(burned_ha, fuel_t_dm_per_ha, ef_g_per_kg_dm, combustion_factor=1.0):
+    """Emission of one gas (or its basis) from burning organic soil [t yr-1].
+
+    Parameters
+    ----------
+    burned_ha : array_like
+        Area of organic soil burnt [ha].
+    fuel_t_dm_per_ha : array_like
+        Mass of fuel available, MB, or directly MB x Cf where the table gives
+        fuel consumption [t dry matter ha-1].
+    ef_g_per_kg_dm : array_like
+        Emission factor G_ef [g kg-1 dry matter burnt].
+    combustion_factor : array_like
+        C_f [fraction]; 1 when ``fuel_t_dm_per_ha`` is already the consumption.
+
+    Notes
+    -----
+    Eq. 2.8 in [WS2013]: L_fire = A x MB x C_f x G_ef x 10^-3 (t of gas).
+    """
+    return (np.asarray(burned_ha, dtype=float) * np.asarray(fuel_t_dm_per_ha, dtype=float)
+            * np.asarray(combustion_factor, dtype=float) * np.asarray(ef_g_per_kg_dm, dtype=float) * 1e-3)

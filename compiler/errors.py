@@ -1,0 +1,135 @@
+"""Error types and input findings.
+
+One base class, :class:`CompilerError`; each subclass also inherits the
+matching builtin so callers may catch either. Every error that concerns a
+user's file carries its location (file, sheet, row, column) and what was
+expected and found, and renders it in one line per problem.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Iterable
+
+SEVERITIES = ("error", "warning", "info")
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One problem or remark about the inputs or the results.
+
+    ``severity`` is ``error`` (blocks the compile), ``warning`` or ``info``.
+    ``row`` is the 1-based line number in the file as a spreadsheet shows it
+    (the header is row 1), or ``None`` where the finding concerns no single row.
+    """
+
+    severity: str
+    check: str
+    message: str
+    file: str = ""
+    sheet: str = ""
+    row: int | None = None
+    column: str = ""
+    found: str = ""
+    expected: str = ""
+
+    def location(self) -> str:
+        parts = []
+        if self.file:
+            parts.append(self.file)
+        if self.sheet:
+            parts.append(f"sheet {self.sheet}")
+        if self.row is not None:
+            parts.append(f"row {self.row}")
+        if self.column:
+            parts.append(f"column {self.column}")
+        return ", ".join(parts)
+
+    def render(self) -> str:
+        text = self.message
+        if self.found != "":
+            text += f"; found {self.found!r}"
+        if self.expected:
+            text += f"; expected {self.expected}"
+        where = self.location()
+        return f"{self.severity}: [{self.check}] {where + ': ' if where else ''}{text}"
+
+    def as_record(self) -> dict:
+        return {
+            "severity": self.severity,
+            "check": self.check,
+            "file": self.file,
+            "sheet": self.sheet,
+            "row": self.row,
+            "column": self.column,
+            "message": self.message,
+            "found": self.found,
+            "expected": self.expected,
+        }
+
+
+class CompilerError(Exception):
+    """Base class of every error the compiler raises on purpose."""
+
+    exit_code = 1
+
+
+class InputError(CompilerError, ValueError):
+    """Bad input: one or more blocking findings. The CLI exits with 2."""
+
+    exit_code = 2
+
+    def __init__(self, findings: Iterable[Finding] | Finding | str):
+        if isinstance(findings, str):
+            findings = [Finding("error", "input", findings)]
+        elif isinstance(findings, Finding):
+            findings = [findings]
+        self.findings = [f for f in findings]
+        super().__init__(self.render())
+
+    def render(self) -> str:
+        errors = [f for f in self.findings if f.severity == "error"]
+        head = f"{len(errors)} blocking problem{'s' if len(errors) != 1 else ''} in the inputs; nothing was written."
+        return "\n".join([head] + [f.render() for f in errors])
+
+
+class SettingsError(InputError):
+    """A problem in the settings file."""
+
+
+class FactorLookupError(CompilerError, KeyError):
+    """A factor that should exist in the shipped tables does not."""
+
+    exit_code = 1
+
+    def __str__(self) -> str:  # KeyError would quote the message
+        return str(self.args[0]) if self.args else ""
+
+
+class ResourceMissing(CompilerError, FileNotFoundError):
+    """A data folder that ships with the package was not found."""
+
+
+@dataclass
+class FindingLog:
+    """Collects findings while a stage runs, so all problems are reported at once."""
+
+    findings: list[Finding] = field(default_factory=list)
+
+    def add(self, severity: str, check: str, message: str, **where) -> None:
+        if severity not in SEVERITIES:
+            raise ValueError(f"unknown severity {severity!r}")
+        finding = Finding(severity, check, message, **where)
+        if finding not in self.findings:  # two pathways needing one factor report it once
+            self.findings.append(finding)
+
+    def extend(self, other: Iterable[Finding]) -> None:
+        self.findings.extend(other)
+
+    @property
+    def errors(self) -> list[Finding]:
+        return [f for f in self.findings if f.severity == "error"]
+
+    def raise_if_errors(self) -> None:
+        if self.errors:
+            raise InputError(self.findings)

@@ -1,0 +1,197 @@
+"""One compile, from settings to result tables: the Python API behind the CLI.
+
+>>> from compiler import compile_inventory
+>>> result = compile_inventory("examples/inventory.toml")   # doctest: +SKIP
+>>> result.categories.head()                                 # doctest: +SKIP
+>>> result.write("out")                                      # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from .activity import load_activity, load_fires, load_overrides, load_review
+from .categories import allocate, category_table
+from .engine import compute
+from .errors import Finding, FindingLog, InputError
+from .factors import FactorLibrary, file_sha256, load_library
+from .metrics import co2_equivalent, gwp_table
+from .settings import Settings, load_settings
+from .units import conversion_factor
+
+EXPORT_COLUMNS = [
+    "year", "region", "category_code", "land_use", "climate_zone", "soil_status", "nutrient_status",
+    "drainage_depth", "subtype", "pathway", "gas", "area_ha", "factor_id", "factor_value", "factor_unit", "tier",
+    "emission_t", "co2eq_t",
+    "remaining_or_converted", "previous_land_use", "fire_type", "land_category_code", "area_basis_ha",
+    "parameter_id", "parameter_value", "parameter_unit", "emission_basis", "emission_basis_t", "default_factor_id",
+    "notation_key", "notation_reason", "equation", "input_file", "input_row",
+]
+
+
+@dataclass
+class InventoryResult:
+    """Everything one compile produced, as DataFrames, plus the means to write it."""
+
+    settings: Settings
+    activity: pd.DataFrame
+    emissions: pd.DataFrame
+    categories: pd.DataFrame
+    factors_used: pd.DataFrame
+    findings: pd.DataFrame
+    library: FactorLibrary = field(repr=False)
+    input_hashes: dict[str, str] = field(default_factory=dict)
+    gwp: dict[str, float] = field(default_factory=dict)
+    compile_date: str = ""
+    version: str = __version__
+    finding_list: list[Finding] = field(default_factory=list, repr=False)
+
+    @property
+    def totals(self) -> pd.DataFrame:
+        """Net emissions per year and gas, and CO2-eq over all gases with a GWP [t]."""
+        est = self.emissions[self.emissions["notation_key"] == ""]
+        return est.pivot_table(index="year", columns="gas", values="emission_t", aggfunc="sum", fill_value=0.0)
+
+    def write(self, out_dir: str | Path, **options) -> Path:
+        """Write every output into ``out_dir`` atomically (see :mod:`compiler.render.outputs`)."""
+        from .render.outputs import write_outputs
+
+        return write_outputs(self, Path(out_dir), **options)
+
+
+def check_inventory(settings: Settings | str | Path, **setting_overrides) -> list[Finding]:
+    """Validate every input and run the factor resolution; return all findings. Writes nothing."""
+    try:
+        result = compile_inventory(settings, **setting_overrides)
+    except InputError as exc:
+        return exc.findings
+    return result.finding_list
+
+
+def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> InventoryResult:
+    """Compile the inventory described by ``settings`` (a path to a TOML file or a :class:`Settings`).
+
+    Raises :class:`compiler.errors.InputError` with every blocking finding
+    when the inputs cannot be compiled.
+    """
+    if not isinstance(settings, Settings):
+        settings = load_settings(settings, setting_overrides or None)
+    library = load_library()
+    log = FindingLog()
+    if settings.factor_set == "ipcc2006" and not settings.ipcc2006_temperate:
+        log.add("error", "settings", "factor_set ipcc2006 needs method.ipcc2006_temperate (Tables 5.6 and 6.3 "
+                "split temperate into cold and warm)", file=str(settings.source), column="method.ipcc2006_temperate",
+                expected="cold_temperate | warm_temperate")
+    activity = load_activity(settings, log)
+    fires = load_fires(settings, log)
+    overrides = load_overrides(settings, log)
+    review = load_review(settings, log, set(library.register["factor_id"]))
+    log.raise_if_errors()
+
+    engine = compute(activity, fires, overrides, library, settings, log)
+    log.raise_if_errors()
+    emissions = engine.emissions
+
+    _check_overrides_against_defaults(emissions, engine.register, overrides, settings, log)
+    _check_review(emissions, review, settings, log)
+    log.raise_if_errors()
+
+    gwp = gwp_table(library.gwp, settings.gwp)
+    emissions["co2eq_t"] = co2_equivalent(emissions["emission_t"], emissions["gas"], gwp)
+    emissions = allocate(emissions, library)
+    emissions["input_file"] = emissions["input_file"].map(lambda p: Path(p).name if p else "")
+    emissions = emissions.sort_values(["year", "region", "category_code", "pathway", "input_row"],
+                                      kind="stable").reset_index(drop=True)
+    categories = category_table(emissions, library, settings.years)
+
+    _check_area_balance(activity, emissions, log)
+    used_ids = set(emissions["factor_id"]) | set(emissions["parameter_id"])
+    factors_used = engine.register[engine.register["factor_id"].isin(used_ids)].copy()
+    factors_used = _attach_review(factors_used, review)
+    unverified = factors_used[factors_used["verification"] == "from_memory"]
+    if not unverified.empty:
+        log.add("info", "verification", f"{len(unverified)} factors in use are marked from_memory: check them "
+                "against the published tables before official use (" + ", ".join(unverified["factor_id"]) + ")")
+
+    hashes = {name: file_sha256(path) for name, path in settings.input_paths().items()}
+    hashes.update({f"factor_tables/{k}": v for k, v in library.hashes().items()})
+    findings = pd.DataFrame([f.as_record() for f in log.findings] or None,
+                            columns=["severity", "check", "file", "sheet", "row", "column", "message", "found",
+                                     "expected"])
+    findings["row"] = findings["row"].astype("Int64")
+    compile_date = settings.compile_date or _dt.date.today().isoformat()
+    return InventoryResult(settings=settings, activity=activity[~activity["_bad"]], emissions=emissions,
+                           categories=categories, factors_used=factors_used, findings=findings, library=library,
+                           input_hashes=hashes, gwp=gwp, compile_date=compile_date,
+                           finding_list=list(log.findings))
+
+
+def _check_overrides_against_defaults(emissions, register, overrides, settings, log) -> None:
+    """Warning: an override outside the 95 % interval of the default it replaces."""
+    if overrides is None or overrides.empty:
+        return
+    replaced = emissions[(emissions["factor_id"] != emissions["default_factor_id"])
+                         & (emissions["default_factor_id"] != "") & (emissions["factor_id"] != "")]
+    pairs = replaced[["factor_id", "default_factor_id"]].drop_duplicates()
+    reg = register.set_index("factor_id")
+    for _, pair in pairs.iterrows():  # distinct override/default pairs: a handful
+        ov, de = reg.loc[pair["factor_id"]], reg.loc[pair["default_factor_id"]]
+        if np.isnan(de["ci_low"]) or np.isnan(de["ci_high"]):
+            continue
+        value = ov["value"] * conversion_factor(ov["unit"], de["unit"], settings.mass_ratios)
+        if not de["ci_low"] <= value <= de["ci_high"]:
+            row = overrides.loc[overrides["override_id"] == pair["factor_id"], "_row"]
+            log.add("warning", "override_outside_default_interval",
+                    f"override {pair['factor_id']} ({value:.4g} {de['unit']}) lies outside the 95 % interval of the "
+                    f"default it replaces, {pair['default_factor_id']} ({de['ci_low']:g} to {de['ci_high']:g}); "
+                    "accepted - document why in the inventory report",
+                    file=str(settings.overrides), row=int(row.iloc[0]) if len(row) else None, column="value",
+                    found=f"{ov['value']:g} {ov['unit']}")
+
+
+def _check_review(emissions, review, settings, log) -> None:
+    """Error: a factor the agency's review found to differ is still in use."""
+    if review is None or review.empty:
+        return
+    differs = review[review["result"] == "differs"]
+    used = set(emissions["factor_id"]) | set(emissions["parameter_id"])
+    for _, row in differs.iterrows():
+        if row["factor_id"] in used:
+            log.add("error", "review_differs",
+                    f"factor {row['factor_id']} was found to differ from the agency's copy ({row['against']}) and is "
+                    "still used; add an override with the correct value and its source",
+                    file=str(settings.factor_review), row=int(row["_row"]), column="result", found="differs",
+                    expected="an override for every stratum that uses this factor")
+
+
+def _attach_review(factors: pd.DataFrame, review: pd.DataFrame) -> pd.DataFrame:
+    factors = factors.copy()
+    for col in ("review_result", "reviewed_by", "reviewed_on", "reviewed_against"):
+        factors[col] = ""
+    if review is None or review.empty:
+        return factors
+    last = review.drop_duplicates("factor_id", keep="last").set_index("factor_id")
+    hit = factors["factor_id"].isin(last.index)
+    ids = factors.loc[hit, "factor_id"]
+    factors.loc[hit, "review_result"] = ids.map(last["result"]).to_numpy()
+    factors.loc[hit, "reviewed_by"] = ids.map(last["checked_by"]).to_numpy()
+    factors.loc[hit, "reviewed_on"] = ids.map(last["checked_on"]).to_numpy()
+    factors.loc[hit, "reviewed_against"] = ids.map(last["against"]).to_numpy()
+    return factors
+
+
+def _check_area_balance(activity, emissions, log) -> None:
+    """Internal consistency: the area of every year goes into the strata output once."""
+    given = activity[~activity["_bad"]].groupby("year")["area_ha"].sum()
+    onsite = emissions[(emissions["pathway"] == "co2_onsite")]
+    got = onsite.groupby("year")["area_ha"].sum().reindex(given.index, fill_value=0.0)
+    off = (given - got).abs() > 1e-6 * given.abs().clip(lower=1.0)
+    for year in given.index[off]:
+        log.add("error", "area_balance", f"area of {year} not carried through to the results",
+                found=f"{got[year]:.3f} ha", expected=f"{given[year]:.3f} ha")

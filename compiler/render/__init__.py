@@ -1,0 +1,1 @@
+"""Renderers: the only code that writes files."""

@@ -1,0 +1,69 @@
+"""Write every output of a compile into a folder, atomically.
+
+Outputs are written into a temporary folder beside the target and moved
+into place in one rename when all are complete; an existing output folder is
+replaced only then. If anything fails, the previous folder is untouched and
+the temporary one removed.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import tempfile
+from pathlib import Path
+
+from .. import __version__
+from ..errors import CompilerError, InputError, Finding
+from .manifest import manifest
+from .tidy import datapackage, write_datapackage, write_emissions_csv
+from .workbook import write_workbook
+
+MARKER = ".histosol-output"
+
+
+def write_outputs(result, out_dir: Path, report: bool = False) -> Path:
+    out_dir = Path(out_dir).resolve()
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError([Finding("error", "output", "output path exists and is not a folder", file=str(out_dir))])
+    if out_dir.is_dir() and any(out_dir.iterdir()) and not (out_dir / MARKER).exists():
+        raise InputError([Finding("error", "output", "output folder exists, is not empty and was not written by "
+                                  "this tool; choose another --out or empty it", file=str(out_dir))])
+    out_dir.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.tmp-", dir=out_dir.parent))
+    os.chmod(tmp, 0o755)
+    try:
+        from ..pipeline import EXPORT_COLUMNS
+
+        write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv")
+        write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__), tmp / "datapackage.json")
+        write_workbook(result, tmp / "inventory.xlsx")
+        if report:
+            from .report import write_report
+
+            write_report(result, tmp)
+        files = sorted(p.name for p in tmp.iterdir())
+        (tmp / "manifest.json").write_text(json.dumps(manifest(result, tmp, files), indent=2) + "\n",
+                                           encoding="utf-8")
+        (tmp / MARKER).write_text("written by histosol; safe to replace with a new compile\n", encoding="utf-8")
+        _swap(tmp, out_dir)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return out_dir
+
+
+def _swap(tmp: Path, out_dir: Path) -> None:
+    """Put ``tmp`` in place of ``out_dir``; the old folder goes only after the new one is in place."""
+    if not out_dir.exists():
+        os.rename(tmp, out_dir)
+        return
+    old = out_dir.with_name(f".{out_dir.name}.old-{os.getpid()}")
+    os.rename(out_dir, old)
+    try:
+        os.rename(tmp, out_dir)
+    except BaseException:
+        os.rename(old, out_dir)
+        raise
+    shutil.rmtree(old, ignore_errors=True)

@@ -1,0 +1,200 @@
+"""inventory.xlsx: summary, reporting table, strata detail, factors, findings, settings.
+
+Written in openpyxl's write-only mode (constant memory). Every string is
+stored as a string cell, never as a formula, whatever it starts with. The
+file is made byte-identical for identical inputs: document timestamps and
+zip entry dates are fixed to the compile date.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import io
+import re
+import zipfile
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from openpyxl import Workbook
+from openpyxl.cell import WriteOnlyCell
+from openpyxl.styles import Alignment, Font, PatternFill
+
+from ..categories import NOTATION_KEYS
+
+SHEET_ROW_LIMIT = 1_048_576
+HEADER_FONT = Font(bold=True, color="FFFFFF")
+HEADER_FILL = PatternFill("solid", fgColor="2F4858")  # our own slate blue
+NOTE_FONT = Font(italic=True, color="555555")
+FORMATS = {"kt": "#,##0.000", "t": "#,##0.000", "ha": "#,##0.0", "pct": "0.0%", "factor": "0.0####", "int": "0"}
+
+
+def _cell(ws, value, number_format: str | None = None, font=None):
+    if isinstance(value, (float, np.floating)) and (np.isnan(value) or np.isinf(value)):
+        value = None
+    elif isinstance(value, np.integer):
+        value = int(value)
+    elif isinstance(value, np.floating):
+        value = float(value)
+    elif value is pd.NA:
+        value = None
+    cell = WriteOnlyCell(ws, value=value)
+    if isinstance(value, str):
+        cell.data_type = "s"  # text from the inputs is never a formula
+    if number_format and isinstance(value, (int, float)):
+        cell.number_format = number_format
+    if font is not None:
+        cell.font = font
+    return cell
+
+
+def _header(ws, names):
+    row = []
+    for name in names:
+        c = _cell(ws, name, font=HEADER_FONT)
+        c.fill = HEADER_FILL
+        c.alignment = Alignment(wrap_text=True, vertical="top")
+        row.append(c)
+    ws.append(row)
+
+
+def _sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), freeze="A2"):
+    """A table sheet: optional note lines, a header row, data rows."""
+    ws = wb.create_sheet(title)
+    formats = formats or {}
+    widths = widths or {}
+    for i, col in enumerate(columns):
+        letter = _letter(i)
+        ws.column_dimensions[letter].width = widths.get(col, max(10, min(48, len(str(col)) + 4)))
+    for note in notes:
+        ws.append([_cell(ws, note, font=NOTE_FONT)])
+    if notes:
+        freeze = f"A{len(notes) + 2}"
+    ws.freeze_panes = freeze
+    _header(ws, columns)
+    for values in rows:
+        ws.append([_cell(ws, v, formats.get(col)) for col, v in zip(columns, values)])
+    return ws
+
+
+def _letter(index: int) -> str:
+    from openpyxl.utils import get_column_letter
+
+    return get_column_letter(index + 1)
+
+
+def _records(frame: pd.DataFrame, columns):
+    data = frame[columns]
+    return data.itertuples(index=False, name=None)
+
+
+def write_workbook(result, path: Path) -> None:
+    s = result.settings
+    wb = Workbook(write_only=True)
+    base, latest = s.first_year, s.last_year
+    cats = result.categories
+
+    # summary
+    summary_rows = []
+    for (code, name, gas), g in cats.groupby(["category_code", "category_name", "gas"], sort=False):
+        by_year = g.set_index("year")
+        b, l = by_year.loc[base], by_year.loc[latest]
+        def show(r):
+            return r["notation_key"] if r["notation_key"] else (r["co2eq_t"] / 1000 if pd.notna(r["co2eq_t"]) else r["emission_t"] / 1000)
+        bv, lv = show(b), show(l)
+        change = (lv - bv) / abs(bv) if isinstance(bv, float) and isinstance(lv, float) and bv != 0 else None
+        unit = "kt CO2-eq" if gas != "CO" else "kt CO"
+        summary_rows.append((code, name, gas, unit, bv, lv, change))
+    totals = cats[cats["notation_key"] == ""].groupby("year")["co2eq_t"].sum()
+    tb, tl = totals.get(base, 0.0) / 1000, totals.get(latest, 0.0) / 1000
+    summary_rows.append(("Total", "all categories, gases with a GWP", "CO2-eq", "kt CO2-eq", tb, tl,
+                         (tl - tb) / abs(tb) if tb else None))
+    notes = [f"{s.name} - submission {s.submission_year}, years {base}-{latest}",
+             f"Factor set {s.factor_set}; GWP100 set {s.gwp}; molar masses: {s.mass_ratios}; compiled {result.compile_date} "
+             f"with histosol {result.version}",
+             "Tier 1 defaults are coarse; key categories deserve higher tiers; estimates must pass the national QA/QC plan.",
+             "Notation keys: " + "; ".join(f"{k} = {v}" for k, v in NOTATION_KEYS.items())]
+    _sheet(wb, "summary", ["category_code", "category_name", "gas", "unit", f"{base}", f"{latest}", "change"],
+           summary_rows, {f"{base}": FORMATS["kt"], f"{latest}": FORMATS["kt"], "change": FORMATS["pct"]},
+           {"category_name": 40, "category_code": 14}, notes)
+
+    # categories x gas x year (kt CO2-eq, notation keys in place)
+    years = list(s.years)
+    wide = []
+    for (code, name, gas), g in cats.groupby(["category_code", "category_name", "gas"], sort=False):
+        by_year = g.set_index("year")
+        values = []
+        for y in years:
+            r = by_year.loc[y]
+            if r["notation_key"]:
+                values.append(r["notation_key"])
+            elif gas == "CO":
+                values.append(r["emission_t"] / 1000)
+            else:
+                values.append(r["co2eq_t"] / 1000)
+        wide.append((code, name, gas, "kt CO" if gas == "CO" else "kt CO2-eq", *values))
+    _sheet(wb, "categories", ["category_code", "category_name", "gas", "unit", *map(str, years)], wide,
+           {str(y): FORMATS["kt"] for y in years}, {"category_name": 36}, freeze="E2")
+
+    # reporting cells in tonnes of gas, long form, with notation reasons
+    _sheet(wb, "categories_long", list(cats.columns), _records(cats, list(cats.columns)),
+           {"area_ha": FORMATS["ha"], "emission_t": FORMATS["t"], "co2eq_t": FORMATS["t"]},
+           {"category_name": 36, "notation_reason": 60})
+
+    # strata detail, split across sheets beyond the sheet row limit
+    em = result.emissions
+    from ..pipeline import EXPORT_COLUMNS
+    chunk = SHEET_ROW_LIMIT - 1
+    fmt = {"area_ha": FORMATS["ha"], "area_basis_ha": FORMATS["ha"], "emission_t": FORMATS["t"],
+           "co2eq_t": FORMATS["t"], "emission_basis_t": FORMATS["t"], "factor_value": FORMATS["factor"],
+           "parameter_value": FORMATS["factor"], "year": FORMATS["int"], "input_row": FORMATS["int"]}
+    parts = max(1, int(np.ceil(len(em) / chunk)))
+    for i in range(parts):
+        title = "strata" if parts == 1 else f"strata_{i + 1}"
+        _sheet(wb, title, EXPORT_COLUMNS, _records(em.iloc[i * chunk:(i + 1) * chunk], EXPORT_COLUMNS), fmt,
+               {"notation_reason": 50, "equation": 30})
+
+    # factors used
+    f = result.factors_used
+    fcols = ["factor_id", "factor_set", "quantity", "climate_zone", "land_use", "soil_status", "nutrient_status",
+             "drainage_depth", "subtype", "fire_type", "value", "unit", "ci_low", "ci_high", "tier", "verification",
+             "verification_note", "table", "row_label", "page", "citation", "region", "first_year", "last_year",
+             "review_result", "reviewed_by", "reviewed_on", "reviewed_against"]
+    _sheet(wb, "factors", fcols, _records(f, fcols), {"value": FORMATS["factor"], "ci_low": FORMATS["factor"],
+                                                     "ci_high": FORMATS["factor"]},
+           {"factor_id": 32, "citation": 60, "row_label": 44, "verification_note": 40},
+           ["Every factor used in this compile, with its source. verification = from_memory: not yet checked "
+            "against the published table; check before official use."])
+
+    fd = result.findings
+    _sheet(wb, "findings", list(fd.columns), _records(fd, list(fd.columns)), {"row": FORMATS["int"]},
+           {"message": 80, "file": 30, "expected": 40})
+
+    settings_rows = s.as_table() + [(f"input sha256: {k}", v, "") for k, v in sorted(result.input_hashes.items())]
+    _sheet(wb, "settings", ["setting", "value", "description"], settings_rows, widths={"setting": 44, "value": 66,
+                                                                                        "description": 60})
+
+    stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00")
+    wb.properties.creator = f"histosol {result.version}"
+    wb.properties.created = stamp
+    buffer = io.BytesIO()
+    wb.save(buffer)
+    path.write_bytes(_fix_zip(buffer.getvalue(), stamp))
+
+
+def _fix_zip(data: bytes, stamp: _dt.datetime) -> bytes:
+    """Same bytes for the same content: fixed entry dates and document timestamps."""
+    src = zipfile.ZipFile(io.BytesIO(data))
+    out = io.BytesIO()
+    iso = stamp.strftime("%Y-%m-%dT%H:%M:%SZ")
+    with zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+        for info in src.infolist():
+            content = src.read(info.filename)
+            if info.filename == "docProps/core.xml":
+                content = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)",
+                                 rb"\g<1>" + iso.encode() + rb"\g<2>", content)
+            entry = zipfile.ZipInfo(info.filename, date_time=stamp.timetuple()[:6])
+            entry.compress_type = zipfile.ZIP_DEFLATED
+            entry.external_attr = 0o600 << 16
+            dst.writestr(entry, content)
+    return out.getvalue()

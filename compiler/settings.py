@@ -1,0 +1,206 @@
+"""Inventory settings from a TOML file, validated with clear errors.
+
+Every number-changing choice of a run comes from here (never from the
+environment or from the presence of a file) and is printed in the report and
+the manifest. Paths are relative to the settings file and may not leave its
+folder.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import difflib
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .errors import Finding, SettingsError
+from .units import MASS_RATIO_CONVENTIONS
+
+FACTOR_SETS = ("ipcc2013ws", "ipcc2006")
+GWP_SETS = ("AR5", "AR4", "AR6", "SAR")
+IPCC2006_TEMPERATE = ("cold_temperate", "warm_temperate")
+
+# section -> key -> (python types, default, allowed values or None, description)
+_REQUIRED = object()
+SCHEMA: dict[str, dict[str, tuple]] = {
+    "inventory": {
+        "name": ((str,), _REQUIRED, None, "inventory name printed on every output"),
+        "submission_year": ((int,), _REQUIRED, None, "year of the submission"),
+        "first_year": ((int,), _REQUIRED, None, "first inventory year (usually 1990)"),
+        "last_year": ((int,), _REQUIRED, None, "last inventory year"),
+        "compile_date": ((str, _dt.date), "", None, "date printed on the outputs (YYYY-MM-DD); blank = today"),
+    },
+    "method": {
+        "factor_set": ((str,), "ipcc2013ws", FACTOR_SETS, "edition of the Tier 1 defaults"),
+        "gwp": ((str,), "AR5", GWP_SETS, "GWP100 set for CO2 equivalents"),
+        "mass_ratios": ((str,), "standard_atomic_weights", MASS_RATIO_CONVENTIONS,
+                        "molar masses for C->CO2, CH4-C->CH4, N2O-N->N2O"),
+        "ipcc2006_temperate": ((str,), "", IPCC2006_TEMPERATE + ("",),
+                               "with factor_set ipcc2006: whether 'temperate' strata are cold or warm temperate"),
+    },
+    "inputs": {
+        "activity": ((str,), _REQUIRED, None, "activity data (CSV or XLSX)"),
+        "activity_sheet": ((str,), "", None, "sheet of an XLSX activity file (blank = the first)"),
+        "fires": ((str,), "", None, "organic-soil fires (CSV or XLSX)"),
+        "overrides": ((str,), "", None, "country- or region-specific factors (CSV or XLSX)"),
+        "factor_review": ((str,), "", None, "the agency's check of shipped factors (CSV or XLSX)"),
+    },
+    "limits": {
+        "max_input_mb": ((int, float), 512, None, "largest input file read, in MiB"),
+    },
+}
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Validated settings of one compile. Paths are absolute."""
+
+    name: str
+    submission_year: int
+    first_year: int
+    last_year: int
+    compile_date: str
+    factor_set: str
+    gwp: str
+    mass_ratios: str
+    ipcc2006_temperate: str
+    activity: Path
+    activity_sheet: str = ""
+    fires: Path | None = None
+    overrides: Path | None = None
+    factor_review: Path | None = None
+    max_input_mb: float = 512
+    source: Path | None = None
+    raw: dict = field(default_factory=dict, compare=False, repr=False)
+
+    @property
+    def years(self) -> range:
+        return range(self.first_year, self.last_year + 1)
+
+    def input_paths(self) -> dict[str, Path]:
+        out = {"activity": self.activity}
+        for key in ("fires", "overrides", "factor_review"):
+            value = getattr(self, key)
+            if value is not None:
+                out[key] = value
+        return out
+
+    def as_table(self) -> list[tuple[str, str, str]]:
+        """(section.key, value, description) for the workbook and report."""
+        rows = []
+        for section, keys in SCHEMA.items():
+            for key, (_, _, _, description) in keys.items():
+                value = getattr(self, key, "")
+                if isinstance(value, Path):
+                    value = value.name
+                rows.append((f"{section}.{key}", "" if value is None else str(value), description))
+        return rows
+
+
+def _err(message: str, file: str, column: str = "", found: str = "", expected: str = "") -> Finding:
+    return Finding("error", "settings", message, file=file, column=column, found=found, expected=expected)
+
+
+def load_settings(path: str | Path, overrides: dict[str, Any] | None = None) -> Settings:
+    """Read and validate a settings file; raise :class:`SettingsError` listing every problem."""
+    path = Path(path)
+    fname = str(path)
+    if not path.is_file():
+        raise SettingsError([_err("settings file not found", fname)])
+    try:
+        with path.open("rb") as handle:
+            data = tomllib.load(handle)
+    except tomllib.TOMLDecodeError as exc:
+        raise SettingsError([_err(f"not valid TOML: {exc}", fname)]) from None
+    except UnicodeDecodeError:
+        raise SettingsError([_err("not valid TOML: the file is not UTF-8 text", fname)]) from None
+    return settings_from_dict(data, path, overrides)
+
+
+def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None = None) -> Settings:
+    fname = str(path)
+    problems: list[Finding] = []
+    values: dict[str, Any] = {}
+    for section in data:
+        if section not in SCHEMA:
+            near = difflib.get_close_matches(section, list(SCHEMA), n=1)
+            problems.append(_err("unknown section", fname, column=f"[{section}]", found=section,
+                                 expected=f"one of {', '.join(SCHEMA)}" + (f" (did you mean [{near[0]}]?)" if near else "")))
+        elif not isinstance(data[section], dict):
+            problems.append(_err("must be a table of keys", fname, column=f"[{section}]"))
+    for section, keys in SCHEMA.items():
+        given = data.get(section, {}) if isinstance(data.get(section, {}), dict) else {}
+        for key in given:
+            if key not in keys:
+                near = difflib.get_close_matches(key, list(keys), n=1)
+                problems.append(_err("unknown key", fname, column=f"{section}.{key}", found=key,
+                                     expected=f"one of {', '.join(keys)}" + (f" (did you mean {near[0]}?)" if near else "")))
+        for key, (types, default, allowed, _) in keys.items():
+            value = given.get(key, default)
+            if overrides and key in overrides and overrides[key] is not None:
+                value = overrides[key]
+            if value is _REQUIRED:
+                problems.append(_err("required key missing", fname, column=f"{section}.{key}"))
+                continue
+            if isinstance(value, bool) or not isinstance(value, types):
+                problems.append(_err("wrong type", fname, column=f"{section}.{key}", found=repr(value),
+                                     expected=" or ".join(t.__name__ for t in types)))
+                continue
+            if allowed is not None and value not in allowed:
+                near = difflib.get_close_matches(str(value), [a for a in allowed if a], n=1)
+                problems.append(_err("value not accepted", fname, column=f"{section}.{key}", found=str(value),
+                                     expected=" | ".join(a for a in allowed if a) + (f" (did you mean {near[0]}?)" if near else "")))
+                continue
+            values[key] = value
+    if problems:
+        raise SettingsError(problems)
+
+    # Cross-key rules.
+    if not 1900 <= values["first_year"] <= values["last_year"] <= 2200:
+        problems.append(_err("years out of order or out of range", fname, column="inventory.first_year/last_year",
+                             found=f"{values['first_year']}..{values['last_year']}",
+                             expected="1900 <= first_year <= last_year <= 2200"))
+    if values["last_year"] > values["submission_year"]:
+        problems.append(_err("last_year is after the submission year", fname, column="inventory.last_year",
+                             found=str(values["last_year"]), expected=f"<= {values['submission_year']}"))
+    if values["max_input_mb"] <= 0:
+        problems.append(_err("must be positive", fname, column="limits.max_input_mb", found=str(values["max_input_mb"])))
+    compile_date = values["compile_date"]
+    if isinstance(compile_date, _dt.date):
+        compile_date = compile_date.isoformat()
+    elif compile_date:
+        try:
+            compile_date = _dt.date.fromisoformat(compile_date).isoformat()
+        except ValueError:
+            problems.append(_err("not a date", fname, column="inventory.compile_date", found=compile_date,
+                                 expected="YYYY-MM-DD"))
+    base = path.resolve().parent
+    paths: dict[str, Path | None] = {}
+    for key in ("activity", "fires", "overrides", "factor_review"):
+        text = values[key]
+        if not text:
+            paths[key] = None
+            continue
+        candidate = (base / text).resolve()
+        if not candidate.is_relative_to(base):
+            problems.append(_err("path leaves the settings folder", fname, column=f"inputs.{key}", found=text,
+                                 expected="a path inside the folder of the settings file"))
+            continue
+        if not candidate.is_file():
+            problems.append(_err("input file not found", fname, column=f"inputs.{key}", found=text,
+                                 expected=f"a file at {candidate}"))
+            continue
+        paths[key] = candidate
+    if problems:
+        raise SettingsError(problems)
+
+    return Settings(
+        name=values["name"], submission_year=values["submission_year"], first_year=values["first_year"],
+        last_year=values["last_year"], compile_date=compile_date, factor_set=values["factor_set"],
+        gwp=values["gwp"], mass_ratios=values["mass_ratios"], ipcc2006_temperate=values["ipcc2006_temperate"],
+        activity=paths["activity"], activity_sheet=values["activity_sheet"], fires=paths["fires"],
+        overrides=paths["overrides"], factor_review=paths["factor_review"],
+        max_input_mb=values["max_input_mb"], source=path.resolve(), raw=data,
+    )
