@@ -19,6 +19,8 @@ from .errors import Finding, SettingsError
 from .units import MASS_RATIO_CONVENTIONS
 
 FACTOR_SETS = ("ipcc2013ws", "ipcc2006")
+ATTRIBUTE = {"approach": "uncertainty_approach"}  # settings key -> Settings attribute, where they differ
+PATH_KEYS = ("activity", "fires", "overrides", "factor_review", "national_totals", "scenarios")
 GWP_SETS = ("AR5", "AR4", "AR6", "SAR")
 IPCC2006_TEMPERATE = ("cold_temperate", "warm_temperate")
 
@@ -46,6 +48,17 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "fires": ((str,), "", None, "organic-soil fires (CSV or XLSX)"),
         "overrides": ((str,), "", None, "country- or region-specific factors (CSV or XLSX)"),
         "factor_review": ((str,), "", None, "the agency's check of shipped factors (CSV or XLSX)"),
+        "national_totals": ((str,), "", None, "rest of the national inventory by year, category and gas (CSV or XLSX)"),
+        "scenarios": ((str,), "", None, "scenario definitions (TOML) for 'histosol scenarios'"),
+    },
+    "uncertainty": {
+        "approach": ((str,), "both", ("1", "2", "both"), "Approach 1 (error propagation), 2 (Monte Carlo) or both"),
+        "iterations": ((int,), 20000, None, "Monte Carlo iterations"),
+        "seed": ((int,), 20130101, None, "seed of the Monte Carlo random numbers"),
+        "correlate_activity_across_years": ((bool,), True, None,
+                                            "one activity draw per region and stratum, shared by all years"),
+        "default_area_pct": ((int, float), 10.0, None,
+                             "95 % half-width of area data in percent where the activity row gives none"),
     },
     "limits": {
         "max_input_mb": ((int, float), 512, None, "largest input file read, in MiB"),
@@ -71,6 +84,13 @@ class Settings:
     fires: Path | None = None
     overrides: Path | None = None
     factor_review: Path | None = None
+    national_totals: Path | None = None
+    scenarios: Path | None = None
+    uncertainty_approach: str = "both"
+    iterations: int = 20000
+    seed: int = 20130101
+    correlate_activity_across_years: bool = True
+    default_area_pct: float = 10.0
     max_input_mb: float = 512
     source: Path | None = None
     raw: dict = field(default_factory=dict, compare=False, repr=False)
@@ -81,7 +101,7 @@ class Settings:
 
     def input_paths(self) -> dict[str, Path]:
         out = {"activity": self.activity}
-        for key in ("fires", "overrides", "factor_review"):
+        for key in PATH_KEYS[1:]:
             value = getattr(self, key)
             if value is not None:
                 out[key] = value
@@ -92,7 +112,7 @@ class Settings:
         rows = []
         for section, keys in SCHEMA.items():
             for key, (_, _, _, description) in keys.items():
-                value = getattr(self, key, "")
+                value = getattr(self, ATTRIBUTE.get(key, key), "")
                 if isinstance(value, Path):
                     value = value.name
                 rows.append((f"{section}.{key}", "" if value is None else str(value), description))
@@ -144,7 +164,7 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
             if value is _REQUIRED:
                 problems.append(_err("required key missing", fname, column=f"{section}.{key}"))
                 continue
-            if isinstance(value, bool) or not isinstance(value, types):
+            if (isinstance(value, bool) and bool not in types) or not isinstance(value, types):
                 problems.append(_err("wrong type", fname, column=f"{section}.{key}", found=repr(value),
                                      expected=" or ".join(t.__name__ for t in types)))
                 continue
@@ -165,6 +185,12 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
     if values["last_year"] > values["submission_year"]:
         problems.append(_err("last_year is after the submission year", fname, column="inventory.last_year",
                              found=str(values["last_year"]), expected=f"<= {values['submission_year']}"))
+    if values["iterations"] < 100 or values["iterations"] > 10_000_000:
+        problems.append(_err("iterations out of range", fname, column="uncertainty.iterations",
+                             found=str(values["iterations"]), expected="100 to 10,000,000"))
+    if not 0 <= values["default_area_pct"] <= 1000:
+        problems.append(_err("out of range", fname, column="uncertainty.default_area_pct",
+                             found=str(values["default_area_pct"]), expected="0 to 1000 (percent)"))
     if values["max_input_mb"] <= 0:
         problems.append(_err("must be positive", fname, column="limits.max_input_mb", found=str(values["max_input_mb"])))
     compile_date = values["compile_date"]
@@ -178,7 +204,7 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
                                  expected="YYYY-MM-DD"))
     base = path.resolve().parent
     paths: dict[str, Path | None] = {}
-    for key in ("activity", "fires", "overrides", "factor_review"):
+    for key in PATH_KEYS:
         text = values[key]
         if not text:
             paths[key] = None
@@ -202,5 +228,9 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         gwp=values["gwp"], mass_ratios=values["mass_ratios"], ipcc2006_temperate=values["ipcc2006_temperate"],
         activity=paths["activity"], activity_sheet=values["activity_sheet"], fires=paths["fires"],
         overrides=paths["overrides"], factor_review=paths["factor_review"],
+        national_totals=paths["national_totals"], scenarios=paths["scenarios"],
+        uncertainty_approach=values["approach"], iterations=values["iterations"], seed=values["seed"],
+        correlate_activity_across_years=values["correlate_activity_across_years"],
+        default_area_pct=float(values["default_area_pct"]),
         max_input_mb=values["max_input_mb"], source=path.resolve(), raw=data,
     )
