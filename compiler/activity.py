@@ -293,6 +293,10 @@ def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
         log.add("error", "override", f"unit cannot be converted for {row['quantity']}: {reasons[idx]}",
                 file=file, sheet=sheet, row=int(row[ROW]), column="unit", found=row["unit"],
                 expected=QUANTITIES[row["quantity"]][1] + " or a convertible unit")
+    fraction_q = known[known["quantity"].map(lambda q: QUANTITIES[q][1] == "fraction")]
+    not_plain = fraction_q[fraction_q["unit"].str.strip().str.lower() != "fraction"]
+    check.rows("error", "override", "give fractions as fractions (0 to 1)", not_plain, "unit", not_plain["unit"],
+               "fraction")
     frame["first_year"] = frame["first_year"].fillna(settings.first_year).astype(int)
     frame["last_year"] = frame["last_year"].fillna(settings.last_year).astype(int)
     reversed_years = frame[frame["first_year"] > frame["last_year"]]

@@ -35,7 +35,7 @@ STRATUM_COLUMNS = ["year", "region", "climate_zone", "land_use", "soil_status", 
                    "subtype", "remaining_or_converted", "previous_land_use"]
 RESULT_COLUMNS = [*STRATUM_COLUMNS, "fire_type", "pathway", "gas", "area_ha", "area_basis_ha", "factor_id",
                   "default_factor_id", "factor_value", "factor_unit", "tier", "parameter_id", "parameter_value", "parameter_unit",
-                  "emission_basis", "emission_basis_t", "emission_t", "notation_key", "notation_reason", "equation",
+                  "emission_basis", "emission_basis_t", "emission_t", "conversion", "notation_key", "notation_reason", "equation",
                   "input_file", "input_row"]
 
 
@@ -176,7 +176,7 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
     for col in ("factor_id", "default_factor_id", "factor_unit", "tier", "parameter_id", "parameter_unit", "emission_basis",
                 "notation_key", "notation_reason"):
         out[col] = ""
-    for col in ("factor_value", "parameter_value", "emission_basis_t", "emission_t", "area_basis_ha"):
+    for col in ("factor_value", "parameter_value", "emission_basis_t", "emission_t", "area_basis_ha", "conversion"):
         out[col] = np.nan
     if cov["status"] != "estimated":
         out["notation_key"], out["notation_reason"] = cov["status"], cov["reason"]
@@ -233,7 +233,11 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
         out["area_basis_ha"] = area
         out["emission_basis"] = f"t {basis_species}"
         out["emission_basis_t"] = basis_t
-        out["emission_t"] = basis_t * basis_ratio(basis_species, gas, convention)
+        to_gas = basis_ratio(basis_species, gas, convention)
+        out["emission_t"] = basis_t * to_gas
+        # emission_t = area_ha x parameter_value (fuel) x factor_value x conversion
+        fuel_scale = second / np.where(out["parameter_value"].to_numpy() == 0, 1.0, out["parameter_value"].to_numpy())
+        out["conversion"] = 1e-3 * _unit_scale(units, species_unit, convention) * fuel_scale * to_gas
         return out
 
     if pathway == "ch4_soil":
@@ -254,6 +258,7 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
     out["emission_basis"] = "t " + pd.Series(basis_name, index=out.index)
     out["emission_basis_t"] = product * to_basis
     out["emission_t"] = product * to_gas
+    out["conversion"] = to_gas  # emission_t = area_basis_ha x factor_value x conversion
     return out
 
 

@@ -30,7 +30,7 @@ EXPORT_COLUMNS = [
     "drainage_depth", "subtype", "pathway", "gas", "area_ha", "factor_id", "factor_value", "factor_unit", "tier",
     "emission_t", "co2eq_t",
     "remaining_or_converted", "previous_land_use", "fire_type", "land_category_code", "area_basis_ha",
-    "parameter_id", "parameter_value", "parameter_unit", "emission_basis", "emission_basis_t", "default_factor_id",
+    "parameter_id", "parameter_value", "parameter_unit", "emission_basis", "emission_basis_t", "conversion", "default_factor_id",
     "notation_key", "notation_reason", "equation", "input_file", "input_row",
 ]
 

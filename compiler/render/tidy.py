@@ -37,6 +37,8 @@ FIELDS: dict[str, tuple[str, str, str]] = {
     "parameter_unit": ("string", "", "unit of parameter_value"),
     "emission_basis": ("string", "", "mass basis the factor is printed on (t CO2-C, t CH4-C, t N2O-N, ...)"),
     "emission_basis_t": ("number", "t", "emission on that basis, before conversion to the gas"),
+    "conversion": ("number", "", "multiplier to t of gas: emission_t = area_basis_ha x factor_value x conversion "
+                   "(fire rows: area_ha x parameter_value x factor_value x conversion)"),
     "default_factor_id": ("string", "", "the Tier 1 default that an override replaced (blank if none)"),
     "notation_key": ("string", "", "NA, NE or IE where the pathway has no estimate; blank otherwise"),
     "notation_reason": ("string", "", "explanation of the notation key"),
