@@ -97,6 +97,8 @@ def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> I
     engine = compute(activity, fires, overrides, library, settings, log)
     log.raise_if_errors()
     emissions = engine.emissions
+    emissions["year"] = emissions["year"].astype("int64")
+    emissions["input_row"] = emissions["input_row"].astype("int64")
 
     _check_overrides_against_defaults(emissions, engine.register, overrides, settings, log)
     _check_review(emissions, review, settings, log)
@@ -126,7 +128,8 @@ def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> I
                                      "expected"])
     findings["row"] = findings["row"].astype("Int64")
     compile_date = settings.compile_date or _dt.date.today().isoformat()
-    return InventoryResult(settings=settings, activity=activity[~activity["_bad"]], emissions=emissions,
+    activity = activity[~activity["_bad"]].astype({"year": "int64"})
+    return InventoryResult(settings=settings, activity=activity, emissions=emissions,
                            categories=categories, factors_used=factors_used, findings=findings, library=library,
                            input_hashes=hashes, gwp=gwp, compile_date=compile_date,
                            finding_list=list(log.findings))

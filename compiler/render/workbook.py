@@ -66,11 +66,11 @@ def _sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), freeze
     for i, col in enumerate(columns):
         letter = _letter(i)
         ws.column_dimensions[letter].width = widths.get(col, max(10, min(48, len(str(col)) + 4)))
+    if notes:
+        freeze = f"{freeze[0]}{len(notes) + 2}"
+    ws.freeze_panes = freeze  # must precede the first row in write-only mode
     for note in notes:
         ws.append([_cell(ws, note, font=NOTE_FONT)])
-    if notes:
-        freeze = f"A{len(notes) + 2}"
-    ws.freeze_panes = freeze
     _header(ws, columns)
     for values in rows:
         ws.append([_cell(ws, v, formats.get(col)) for col, v in zip(columns, values)])

@@ -1,0 +1,116 @@
+"""Written outputs: Table Schema validity, workbook contents, manifest, determinism, atomic writes."""
+
+import hashlib
+import json
+
+import openpyxl
+import pandas as pd
+import pytest
+from frictionless import validate  # reference implementation of the Table Schema standard
+
+from compiler import compile_inventory
+from compiler.pipeline import EXPORT_COLUMNS
+
+
+def sha(path):
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_all_outputs_written(demo_output):
+    names = {p.name for p in demo_output.iterdir()}
+    assert {"emissions.csv", "datapackage.json", "inventory.xlsx", "manifest.json"} <= names
+
+
+def test_emissions_csv_validates_against_its_schema(demo_output):
+    # Source: frictionless (PyPI), the reference implementation of the Frictionless Table Schema.
+    report = validate(str(demo_output / "datapackage.json"))
+    assert report.valid, report.flatten(["rowNumber", "fieldName", "type", "note"])[:10]
+
+
+def test_emissions_csv_has_the_documented_columns(demo_output):
+    frame = pd.read_csv(demo_output / "emissions.csv", nrows=5)
+    assert list(frame.columns) == EXPORT_COLUMNS
+    assert EXPORT_COLUMNS[:18] == ["year", "region", "category_code", "land_use", "climate_zone", "soil_status",
+                                   "nutrient_status", "drainage_depth", "subtype", "pathway", "gas", "area_ha",
+                                   "factor_id", "factor_value", "factor_unit", "tier", "emission_t", "co2eq_t"]
+
+
+def test_workbook_sheets_and_summary_equal_the_tables(demo_output, demo_result):
+    wb = openpyxl.load_workbook(demo_output / "inventory.xlsx")
+    assert wb.sheetnames == ["summary", "categories", "categories_long", "strata", "factors", "findings", "settings"]
+    ws = wb["summary"]
+    header_row = next(r for r in range(1, 10) if ws.cell(r, 1).value == "category_code")
+    assert ws.freeze_panes == f"A{header_row + 1}"
+    rows = {(ws.cell(r, 1).value, ws.cell(r, 3).value): ws.cell(r, 6).value
+            for r in range(header_row + 1, ws.max_row + 1)}
+    cats = demo_result.categories
+    cell = cats[(cats.category_code == "3.B.3.a") & (cats.gas == "CO2") & (cats.year == 2024)].iloc[0]
+    assert rows[("3.B.3.a", "CO2")] == pytest.approx(cell["co2eq_t"] / 1000)
+    assert rows[("3.B.1.b", "CO2")] == "NO"
+    total = cats[cats.notation_key == ""].groupby("year")["co2eq_t"].sum()[2024] / 1000
+    assert rows[("Total", "CO2-eq")] == pytest.approx(total)
+
+
+def test_workbook_factors_sheet_shows_verification(demo_output):
+    ws = openpyxl.load_workbook(demo_output / "inventory.xlsx")["factors"]
+    header = [c.value for c in ws[2]]
+    status = {ws.cell(r, 1).value: ws.cell(r, header.index("verification") + 1).value for r in range(3, ws.max_row + 1)}
+    assert status["ws13-t2.1-tem-crop"] == "from_memory"
+    assert status["quillfen-grass-co2"] == "supplied"
+
+
+def test_user_text_is_never_a_formula(tmp_path, demo_copy):
+    activity = demo_copy.parent / "activity.csv"
+    frame = pd.read_csv(activity, dtype=str, keep_default_na=False)
+    frame.loc[frame["region"] == "Quillfen", "region"] = "=HYPERLINK(\"http://example.invalid\")"
+    frame.to_csv(activity, index=False)
+    settings = demo_copy.read_text().replace('overrides = "overrides.csv"\n', "")
+    demo_copy.write_text(settings)
+    out = tmp_path / "out"
+    compile_inventory(demo_copy).write(out)
+    ws = openpyxl.load_workbook(out / "inventory.xlsx")["strata"]
+    col = [c.value for c in ws[1]].index("region") + 1
+    cells = [ws.cell(r, col) for r in range(2, ws.max_row + 1)]
+    hits = [c for c in cells if str(c.value).startswith("=HYPERLINK")]
+    assert hits and all(c.data_type == "s" for c in hits)
+
+
+def test_manifest(demo_output, demo_result):
+    m = json.loads((demo_output / "manifest.json").read_text())
+    assert m["tool"] == "histosol" and m["settings"]["method.gwp"] == "AR5"
+    assert set(m["inputs_sha256"]) == {"activity", "fires", "overrides", "factor_review"}
+    assert "drained_ipcc2013ws.csv" in m["factor_tables_sha256"]
+    assert m["area_ha_by_year"]["2024"] == pytest.approx(demo_result.activity.query("year == 2024")["area_ha"].sum())
+    assert m["outputs_sha256"]["emissions.csv"] == sha(demo_output / "emissions.csv")
+
+
+def test_two_compiles_are_byte_identical(tmp_path, demo_result):
+    a, b = tmp_path / "a", tmp_path / "b"
+    demo_result.write(a)
+    compile_inventory(demo_result.settings).write(b)
+    for name in ("emissions.csv", "datapackage.json", "inventory.xlsx", "manifest.json"):
+        assert sha(a / name) == sha(b / name), name
+
+
+def test_failed_write_leaves_previous_output_untouched(tmp_path, demo_result, monkeypatch):
+    out = tmp_path / "out"
+    demo_result.write(out)
+    before = {p.name: sha(p) for p in out.iterdir()}
+
+    def boom(*args, **kwargs):
+        raise RuntimeError("renderer failed")
+
+    monkeypatch.setattr("compiler.render.outputs.write_workbook", boom)
+    with pytest.raises(RuntimeError):
+        demo_result.write(out)
+    assert {p.name: sha(p) for p in out.iterdir()} == before
+    assert [p.name for p in tmp_path.iterdir()] == ["out"]  # no temporary folder left behind
+
+
+def test_refuses_to_overwrite_a_foreign_folder(tmp_path, demo_result):
+    out = tmp_path / "mine"
+    out.mkdir()
+    (out / "notes.txt").write_text("keep me")
+    with pytest.raises(Exception, match="not written by this tool"):
+        demo_result.write(out)
+    assert (out / "notes.txt").read_text() == "keep me"
