@@ -26,11 +26,13 @@ def _parser() -> argparse.ArgumentParser:
     d = sub.add_parser("demo", help="compile the bundled invented demo region and write every output")
     d.add_argument("--out", default="demo-output", help="output folder (default: demo-output)")
     d.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    _report_options(d)
 
     c = sub.add_parser("compile", help="compile an inventory from its settings file")
     c.add_argument("settings", help="settings file (TOML)")
     c.add_argument("--out", default="output", help="output folder (default: output)")
     c.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    _report_options(c)
 
     k = sub.add_parser("check", help="validate all inputs and print every finding; writes nothing")
     k.add_argument("settings", help="settings file (TOML)")
@@ -43,6 +45,13 @@ def _parser() -> argparse.ArgumentParser:
     f.add_argument("--soil-status", choices=["drained", "rewetted"], help="only drained or rewetted rows")
     f.add_argument("--csv", action="store_true", help="print CSV instead of a table")
     return p
+
+
+def _report_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--no-report", action="store_true", help="skip report.html and report.pdf")
+    p.add_argument("--archive", action="store_true",
+                   help="also write report-archive.pdf (PDF/A-3b with emissions.csv, datapackage.json and "
+                        "manifest.json attached)")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -74,14 +83,16 @@ def _run(args) -> int:
         settings = resource_dir("examples") / "demo" / "inventory.toml"
     else:
         settings = Path(args.settings)
-    return _compile(settings, Path(args.out), args.quiet)
+    return _compile(settings, Path(args.out), args.quiet, not args.no_report, args.archive)
 
 
-def _compile(settings: Path, out: Path, quiet: bool) -> int:
+def _compile(settings: Path, out: Path, quiet: bool, report: bool, archive: bool) -> int:
     from .pipeline import compile_inventory
 
     result = compile_inventory(settings)
-    folder = result.write(out)
+    if archive and not report:
+        raise InputError("--archive needs the report: drop --no-report")
+    folder = result.write(out, report=report, archive=archive)
     if not quiet:
         _print_summary(result, folder)
     return EXIT_OK

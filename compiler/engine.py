@@ -106,7 +106,10 @@ def _report_missing(rows: pd.DataFrame, missing: np.ndarray, quantity: str, libr
 
 def _note_undistinguished(rows: pd.DataFrame, ids: pd.Series, register: pd.DataFrame, quantity: str,
                           log: FindingLog) -> None:
-    """Info: a stratum gives a nutrient status, depth or subtype that the matched table row does not use."""
+    """Info: a stratum gives a nutrient status, depth or subtype that the matched table row does not use.
+
+    One note per key, value and table, naming the strata (climate zone and land use) concerned.
+    """
     info = register.set_index("factor_id").reindex(ids.dropna().unique())
     if info.empty:
         return
@@ -121,11 +124,25 @@ def _note_undistinguished(rows: pd.DataFrame, ids: pd.Series, register: pd.DataF
         if not unused.any():
             continue
         sub = rows.loc[unused[unused].index]
-        for (zone, land, value), group in sub.groupby(["climate_zone", "land_use", key]):
-            table = info.loc[ids[group.index[0]], "table"] or "the override"
-            log.add("info", "not_distinguished",
-                    f"{key} '{value}' is not distinguished by {table} for {zone} {land} ({quantity}); accepted "
-                    f"({len(group)} rows)", file=file, row=int(group[ROW].iloc[0]), column=key, found=value)
+        tables = ids[sub.index].map(info["table"]).replace("", "the override")
+        for (value, table), group in sub.groupby([sub[key], tables]):
+            strata = {f"{z} {l.replace('_', ' ')}" for z, l in zip(group["climate_zone"], group["land_use"])}
+            entry = log.pending.setdefault((file, key, value), {"tables": set(), "strata": set(), "row": None})
+            entry["tables"].add(table)
+            entry["strata"] |= strata
+            first = int(group[ROW].min())
+            entry["row"] = first if entry["row"] is None else min(entry["row"], first)
+
+
+def _flush_undistinguished(log: FindingLog) -> None:
+    """One note per key and value, naming the tables that do not use it and the strata concerned."""
+    for (file, key, value), entry in sorted(log.pending.items()):
+        tables = ", ".join(sorted(entry["tables"]))
+        log.add("info", "not_distinguished",
+                f"{key} '{value}' is not distinguished by {tables} for {', '.join(sorted(entry['strata']))}; "
+                "the value is accepted and the undistinguished factor used", file=file, row=entry["row"],
+                column=key, found=value)
+    log.pending.clear()
 
 
 def compute(activity: pd.DataFrame, fires: pd.DataFrame, overrides: pd.DataFrame, library: FactorLibrary,
@@ -156,6 +173,7 @@ def compute(activity: pd.DataFrame, fires: pd.DataFrame, overrides: pd.DataFrame
         for _, cov in coverage[coverage["soil_status"] == "fire"].iterrows():
             pieces.append(_pathway(good, cov, library, settings, overrides, lookup, register, log, convention,
                                    area_column="burned_ha"))
+    _flush_undistinguished(log)
     pieces = [p for p in pieces if not p.empty]
     emissions = pd.concat(pieces, ignore_index=True) if pieces else pd.DataFrame(columns=RESULT_COLUMNS)
     return EngineResult(emissions=emissions[RESULT_COLUMNS], register=register)

@@ -115,6 +115,7 @@ class FindingLog:
     """Collects findings while a stage runs, so all problems are reported at once."""
 
     findings: list[Finding] = field(default_factory=list)
+    pending: dict = field(default_factory=dict)  # notes a stage aggregates before adding them
 
     def add(self, severity: str, check: str, message: str, **where) -> None:
         if severity not in SEVERITIES:

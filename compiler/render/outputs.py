@@ -23,7 +23,7 @@ from .workbook import write_workbook
 MARKER = ".histosol-output"
 
 
-def write_outputs(result, out_dir: Path, report: bool = False) -> Path:
+def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = False) -> Path:
     out_dir = Path(out_dir).resolve()
     if out_dir.exists() and not out_dir.is_dir():
         raise InputError([Finding("error", "output", "output path exists and is not a folder", file=str(out_dir))])
@@ -39,13 +39,17 @@ def write_outputs(result, out_dir: Path, report: bool = False) -> Path:
         write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv")
         write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__), tmp / "datapackage.json")
         write_workbook(result, tmp / "inventory.xlsx")
-        if report:
+        if report or archive:
             from .report import write_report
 
             write_report(result, tmp)
         files = sorted(p.name for p in tmp.iterdir())
         (tmp / "manifest.json").write_text(json.dumps(manifest(result, tmp, files), indent=2) + "\n",
                                            encoding="utf-8")
+        if archive:  # after the manifest, which it carries inside
+            from .report import write_archive
+
+            write_archive(result, tmp)
         (tmp / MARKER).write_text("written by histosol; safe to replace with a new compile\n", encoding="utf-8")
         _swap(tmp, out_dir)
     except BaseException:

@@ -1,0 +1,123 @@
+"""Charts of the report as inline SVG (matplotlib), in colours of our own that stay apart in grey print.
+
+Each chart is drawn from result tables only and returned as SVG text; the
+SVG carries no date and fixed ids, so the report is reproducible.
+"""
+
+from __future__ import annotations
+
+import io
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import pandas as pd  # noqa: E402
+
+# Pathway colours (dark to light, with hatches, so grey print keeps them apart).
+PATHWAY_STYLE = {
+    "co2_onsite": ("#4a2f1f", ""), "co2_doc": ("#9b6b43", "//"), "ch4_soil": ("#1f6f5c", ""),
+    "ch4_ditch": ("#79c2a8", ".."), "n2o_soil": ("#c8a434", "\\\\"), "fire_co2": ("#7a1f0a", "xx"),
+    "fire_ch4": ("#e0874a", "++"),
+}
+PATHWAY_LABEL = {
+    "co2_onsite": "CO2 on site", "co2_doc": "CO2 from DOC", "ch4_soil": "CH4 soil", "ch4_ditch": "CH4 ditches",
+    "n2o_soil": "N2O", "fire_co2": "fire CO2", "fire_ch4": "fire CH4",
+}
+LAND_USE_STYLE = {
+    "forest_land": ("#2e5e3e", ""), "cropland": ("#b07c2a", "//"), "grassland": ("#8cbf5a", ".."),
+    "wetlands": ("#3f7fa8", "\\\\"), "settlements": ("#777777", "xx"), "other_land": ("#bbbbbb", "++"),
+}
+GAS_STYLE = {"CO2": ("#4a2f1f", ""), "CH4": ("#1f6f5c", "//"), "N2O": ("#c8a434", "..")}
+
+plt.rcParams.update({"font.family": "DejaVu Sans", "font.size": 8, "svg.hashsalt": "histosol",
+                     "svg.fonttype": "none", "axes.spines.top": False, "axes.spines.right": False})
+
+
+def _svg(fig) -> str:
+    buf = io.StringIO()
+    fig.savefig(buf, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": "histosol"})
+    plt.close(fig)
+    text = buf.getvalue()
+    return text[text.index("<svg"):]
+
+
+def _stack(ax, frame: pd.DataFrame, styles: dict, labels: dict | None = None):
+    """Stacked areas with positive and negative parts stacked apart (removals below zero)."""
+    years = frame.index.to_numpy()
+    pos_base = pd.Series(0.0, index=frame.index)
+    neg_base = pd.Series(0.0, index=frame.index)
+    for col in [c for c in styles if c in frame.columns]:
+        values = frame[col].fillna(0.0)
+        colour, hatch = styles[col]
+        pos, neg = values.clip(lower=0), values.clip(upper=0)
+        label = (labels or {}).get(col, col)
+        if (pos > 0).any():
+            ax.fill_between(years, pos_base, pos_base + pos, color=colour, hatch=hatch, edgecolor="white",
+                            linewidth=0.3, label=label)
+            pos_base = pos_base + pos
+        if (neg < 0).any():
+            ax.fill_between(years, neg_base, neg_base + neg, color=colour, hatch=hatch, edgecolor="white",
+                            linewidth=0.3, label=None if (pos > 0).any() else label)
+            neg_base = neg_base + neg
+    total = frame.sum(axis=1)
+    ax.plot(years, total, color="black", linewidth=1.0, label="net total")
+    ax.axhline(0, color="#444444", linewidth=0.5)
+    ax.set_xlim(years.min(), years.max())
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+
+
+def _kt(est: pd.DataFrame, column: str) -> pd.DataFrame:
+    return est.pivot_table(index="year", columns=column, values="co2eq_t", aggfunc="sum", fill_value=0.0) / 1000
+
+
+def emissions_by_pathway(emissions: pd.DataFrame) -> str:
+    est = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
+    fig, ax = plt.subplots(figsize=(6.2, 2.8))
+    _stack(ax, _kt(est, "pathway"), PATHWAY_STYLE, PATHWAY_LABEL)
+    ax.set_ylabel("kt CO2-eq per year")
+    ax.set_title("Net emissions by pathway", loc="left")
+    return _svg(fig)
+
+
+def emissions_by_land_use(emissions: pd.DataFrame) -> str:
+    est = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
+    fig, ax = plt.subplots(figsize=(6.2, 2.8))
+    _stack(ax, _kt(est, "land_use"), LAND_USE_STYLE)
+    ax.set_ylabel("kt CO2-eq per year")
+    ax.set_title("Net emissions by land use", loc="left")
+    return _svg(fig)
+
+
+def area_by_status(activity: pd.DataFrame) -> str:
+    table = activity.pivot_table(index="year", columns="soil_status", values="area_ha", aggfunc="sum",
+                                 fill_value=0.0) / 1000
+    fig, ax = plt.subplots(figsize=(6.2, 2.4))
+    styles = {"drained": ("#6b4a2f", "-", None), "rewetted": ("#2f7fa8", "--", "o")}
+    for col, (colour, line, marker) in styles.items():
+        if col in table:
+            ax.plot(table.index, table[col], color=colour, linestyle=line, linewidth=1.6, marker=marker,
+                    markersize=2.5, markevery=5, label=col)
+    ax.set_ylabel("thousand ha")
+    ax.set_ylim(bottom=0)
+    ax.set_title("Drained and rewetted organic-soil area", loc="left")
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+    return _svg(fig)
+
+
+def contribution_by_gas(emissions: pd.DataFrame) -> str:
+    est = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
+    fig, ax = plt.subplots(figsize=(6.2, 2.8))
+    _stack(ax, _kt(est, "gas"), GAS_STYLE)
+    ax.set_ylabel("kt CO2-eq per year")
+    ax.set_title("Contribution of each gas", loc="left")
+    return _svg(fig)
+
+
+def all_charts(result) -> dict[str, str]:
+    return {
+        "pathway": emissions_by_pathway(result.emissions),
+        "land_use": emissions_by_land_use(result.emissions),
+        "area": area_by_status(result.activity),
+        "gas": contribution_by_gas(result.emissions),
+    }

@@ -1,0 +1,377 @@
+"""report.html and report.pdf from report_templates/ (Jinja2, autoescaped; WeasyPrint for the PDF).
+
+Every number in the report is computed here from the result tables; the
+templates format and place them, and never hold a factor or a total of their
+own. WeasyPrint may fetch only files inside the template folder: any other
+URL or path, including one that a user's text might carry, is refused.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+from pathlib import Path
+from urllib.parse import unquote, urlparse
+
+import numpy as np
+import pandas as pd
+from jinja2 import Environment, FileSystemLoader, select_autoescape
+
+from ..categories import NOTATION_KEYS
+from ..engine import PATHWAYS
+from ..resources import resource_dir
+from ..units import basis_ratio
+from . import charts
+
+CAUTIONS = [
+    ("Tier 1 defaults are coarse.", "They are global or climate-zone means and may not represent national "
+     "conditions; the 95 % intervals in the factor register show how coarse."),
+    ("Key categories deserve higher tiers.", "Where a category is key, country-specific factors (Tier 2) or "
+     "models and measurements (Tier 3) are good practice."),
+    ("Unverified factors.", "Factors marked from_memory were entered from the published tables but not yet "
+     "checked against the text; check each against your copy of the guidance before official use."),
+    ("National QA/QC.", "These estimates must pass the national QA/QC plan and its review before they are "
+     "submitted."),
+    ("Rewetting works.", "Rewetting needs hydrological design, permits and compliance with local codes, carried "
+     "out by qualified, licensed professionals. Nothing in this report is a design."),
+    ("Not a forecast.", "Any scenario or projection built on these numbers describes a pathway under stated "
+     "assumptions, not a forecast."),
+]
+
+EQUATIONS = {
+    "co2_onsite": {
+        "title": "On-site CO<sub>2</sub> of drained and rewetted organic soils",
+        "source": "2013 Wetlands Supplement Eq. 2.3 (drained, Table 2.1); Chapter 3 (rewetted, Table 3.1)",
+        "html": "CO<sub>2</sub>-C<sub>on-site</sub> = &Sigma;<sub>s</sub> A<sub>s</sub> &times; EF<sub>CO2,s</sub>",
+        "symbols": [("A<sub>s</sub>", "area of organic soil in stratum s", "ha"),
+                    ("EF<sub>CO2,s</sub>", "on-site emission factor (negative: removal)", "t CO2-C ha<sup>-1</sup> yr<sup>-1</sup>")],
+    },
+    "co2_doc": {
+        "title": "Off-site CO<sub>2</sub> from dissolved organic carbon",
+        "source": "2013 Wetlands Supplement Eq. 2.4 with Table 2.2 (EF<sub>DOC</sub> from Eq. 2.5); Chapter 3, Table 3.2",
+        "html": "CO<sub>2</sub>-C<sub>DOC</sub> = &Sigma;<sub>s</sub> A<sub>s</sub> &times; EF<sub>DOC,s</sub>; "
+                "&nbsp; EF<sub>DOC</sub> = DOC<sub>FLUX_NATURAL</sub> &times; (1 + &Delta;DOC<sub>DRAINAGE</sub>) &times; Frac<sub>DOC-CO2</sub>",
+        "symbols": [("EF<sub>DOC,s</sub>", "emission factor for DOC exported from the stratum", "t CO2-C ha<sup>-1</sup> yr<sup>-1</sup>")],
+    },
+    "ch4_soil": {
+        "title": "CH<sub>4</sub> from the land surface",
+        "source": "2013 Wetlands Supplement Eq. 2.6, first term (drained, Table 2.3); Chapter 3 (rewetted, Table 3.3, whole area)",
+        "html": "CH<sub>4,land</sub> = &Sigma;<sub>s</sub> A<sub>s</sub> &times; (1 &minus; Frac<sub>ditch,s</sub>) &times; EF<sub>CH4,land,s</sub>",
+        "symbols": [("Frac<sub>ditch,s</sub>", "fraction of the drained area occupied by ditches (Table 2.4, or measured); 0 for rewetted land", "fraction"),
+                    ("EF<sub>CH4,land,s</sub>", "CH4 emission factor of the land surface", "kg CH4 (Table 2.3) or kg CH4-C (Table 3.3) ha<sup>-1</sup> yr<sup>-1</sup>")],
+    },
+    "ch4_ditch": {
+        "title": "CH<sub>4</sub> from drainage ditches",
+        "source": "2013 Wetlands Supplement Eq. 2.6, second term (Table 2.4)",
+        "html": "CH<sub>4,ditch</sub> = &Sigma;<sub>s</sub> A<sub>s</sub> &times; Frac<sub>ditch,s</sub> &times; EF<sub>CH4,ditch,s</sub>",
+        "symbols": [("EF<sub>CH4,ditch,s</sub>", "CH4 emission factor per ha of ditch surface", "kg CH4 ha<sup>-1</sup> yr<sup>-1</sup>")],
+    },
+    "n2o_soil": {
+        "title": "Direct N<sub>2</sub>O from drained organic soils",
+        "source": "2013 Wetlands Supplement Eq. 2.7 (Table 2.5); 2006 IPCC Guidelines Vol. 4 Eq. 11.1, F<sub>OS</sub> term (Table 11.1)",
+        "html": "N<sub>2</sub>O-N = &Sigma;<sub>s</sub> A<sub>s</sub> &times; EF<sub>N2O,s</sub>",
+        "symbols": [("EF<sub>N2O,s</sub>", "N2O emission factor", "kg N2O-N ha<sup>-1</sup> yr<sup>-1</sup>")],
+    },
+    "fire": {
+        "title": "Emissions from fires on organic soils",
+        "source": "2013 Wetlands Supplement Eq. 2.8 (Tables 2.6 and 2.7)",
+        "html": "L<sub>fire</sub> = A<sub>burnt</sub> &times; MB &times; C<sub>f</sub> &times; G<sub>ef</sub> &times; 10<sup>&minus;3</sup>",
+        "symbols": [("A<sub>burnt</sub>", "area of organic soil burnt", "ha"),
+                    ("MB &times; C<sub>f</sub>", "fuel consumed (Table 2.6 gives the product)", "t dry matter ha<sup>-1</sup>"),
+                    ("G<sub>ef</sub>", "emission factor (Table 2.7)", "g kg<sup>-1</sup> dry matter burnt"),
+                    ("L<sub>fire</sub>", "emission of the gas, or of CO2-C for CO2", "t")],
+    },
+}
+METHOD_OF_PATHWAY = {p: ("fire" if p.startswith("fire_") else p) for p in PATHWAYS}
+
+
+class RestrictedFetcher:
+    """A WeasyPrint URL fetcher that serves only files inside one folder and refuses everything else."""
+
+    def __init__(self, root: Path):
+        from weasyprint.urls import URLFetcher
+
+        self.root = Path(root).resolve()
+        self.refused: list[str] = []
+        self._inner = URLFetcher(allowed_protocols={"file"})
+
+    def __call__(self, url, *args, **kwargs):  # older WeasyPrint calls the fetcher as a function
+        return self.fetch(url, *args, **kwargs)
+
+    def fetch(self, url, headers=None):
+        parsed = urlparse(url)
+        if parsed.scheme == "file":
+            path = Path(unquote(parsed.path)).resolve()
+            if path.is_relative_to(self.root) and path.is_file():
+                return self._inner.fetch(url, headers)
+        self.refused.append(url)
+        raise ValueError(f"refused to fetch {url!r}: the report loads files from its template folder only")
+
+
+def _years_shown(first: int, last: int) -> list[int]:
+    years = [first] + [y for y in range(first + 1, last) if y % 5 == 0] + ([last] if last != first else [])
+    return sorted(set(years))
+
+
+def _fmt(value, digits: int = 1) -> str:
+    if value is None or (isinstance(value, float) and np.isnan(value)):
+        return ""
+    return f"{value:,.{digits}f}".replace("-", "\u2212")
+
+
+def _pct(new, old) -> str:
+    if not old:
+        return ""
+    return f"{(new - old) / abs(old) * 100:+.1f} %".replace("-", "\u2212")
+
+
+def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
+    s = result.settings
+    cats = result.categories
+    em = result.emissions
+    est = em[em["notation_key"] == ""]
+    base, latest = s.first_year, s.last_year
+    years = _years_shown(base, latest)
+    gwp = result.gwp
+
+    totals = cats[cats["notation_key"] == ""].groupby("year")["co2eq_t"].sum() / 1000
+    total_base, total_latest = float(totals.get(base, 0.0)), float(totals.get(latest, 0.0))
+
+    by_gas = []
+    for gas in ("CO2", "CH4", "N2O"):
+        g = cats[(cats["gas"] == gas) & (cats["notation_key"] == "")].groupby("year")["co2eq_t"].sum() / 1000
+        b, l = float(g.get(base, 0.0)), float(g.get(latest, 0.0))
+        by_gas.append({"gas": gas, "base": _fmt(b), "latest": _fmt(l), "change": _pct(l, b), "raw_latest": l})
+    cat_sum = (cats[cats["notation_key"] == ""].groupby(["category_code", "category_name", "year"])["co2eq_t"]
+               .sum().unstack("year").reindex(columns=[base, latest]).fillna(0.0) / 1000)
+    by_category = [{"code": c, "name": n, "base": _fmt(r[base]), "latest": _fmt(r[latest]),
+                    "change": _pct(r[latest], r[base]), "raw_latest": r[latest], "raw_change": r[latest] - r[base]}
+                   for (c, n), r in cat_sum.iterrows() if r[base] or r[latest]]
+
+    reg_sum = (est[est["co2eq_t"].notna()].groupby(["region", "year"])["co2eq_t"].sum().unstack("year")
+               .reindex(columns=[base, latest]).fillna(0.0) / 1000)
+    by_region = [{"region": name, "base": _fmt(r[base]), "latest": _fmt(r[latest]), "change": _pct(r[latest], r[base])}
+                 for name, r in reg_sum.iterrows()]
+    unverified_used = result.factors_used[result.factors_used["verification"] == "from_memory"]
+    factor_sources = _register(result)
+
+    # Results: every category x gas row, kt CO2-eq (kt CO for CO) in the years shown.
+    rows = []
+    factors_by_cell = est.groupby(["category_code", "gas"])["factor_id"].agg(lambda x: sorted(set(x)))
+    params_by_cell = est[est["parameter_id"] != ""].groupby(["category_code", "gas"])["parameter_id"].agg(
+        lambda x: sorted(set(x) - {"activity:ditch_fraction"}))
+    pathways_by_cell = est.groupby(["category_code", "gas"])["pathway"].agg(lambda x: sorted(set(x)))
+    for (code, name, gas), g in cats.groupby(["category_code", "category_name", "gas"], sort=False):
+        by_year = g.set_index("year")
+        cells, keys = [], set()
+        for y in years:
+            r = by_year.loc[y]
+            if r["notation_key"]:
+                cells.append(r["notation_key"])
+                keys.add(r["notation_key"])
+            else:
+                v = r["emission_t"] if gas == "CO" else r["co2eq_t"]
+                cells.append(_fmt(v / 1000, 2))
+        if keys == {"NO"} and not (g["notation_key"] != "NO").any():
+            continue  # a category that never occurs is listed once, below the table
+        ids = factors_by_cell.get((code, gas), []) + params_by_cell.get((code, gas), [])
+        methods = sorted({METHOD_OF_PATHWAY[p] for p in pathways_by_cell.get((code, gas), [])})
+        reason = _merge_reasons(g.loc[g["notation_key"] != "", "notation_reason"])
+        tonnes = [_fmt(by_year.loc[y, "emission_t"], 1) if not by_year.loc[y, "notation_key"] else by_year.loc[y, "notation_key"]
+                  for y in (base, latest)]
+        rows.append({"code": code, "name": name, "gas": gas, "cells": cells, "factor_ids": ids, "methods": methods,
+                     "reason": reason, "tonnes": tonnes, "unit": "kt CO" if gas == "CO" else "kt CO2-eq",
+                     "unverified": any(i in set(unverified_used["factor_id"]) for i in ids)})
+    never = sorted(set(cats["category_code"]) - {r["code"] for r in rows})
+
+    findings = result.findings
+    # Methods: which strata use each equation.
+    methods = []
+    for key, eq in EQUATIONS.items():
+        pathways = [p for p, m in METHOD_OF_PATHWAY.items() if m == key]
+        rows_m = est[est["pathway"].isin(pathways)]
+        if rows_m.empty:
+            continue
+        strata = rows_m.drop_duplicates(["land_use", "climate_zone", "soil_status", "nutrient_status",
+                                         "drainage_depth", "subtype"])
+        methods.append({**eq, "id": key, "pathways": pathways,
+                        "strata": [_describe(r) for _, r in strata.iterrows()],
+                        "categories": sorted(set(rows_m["category_code"]))})
+    conv = s.mass_ratios
+    conversions = [("C to CO<sub>2</sub>", basis_ratio("CO2-C", "CO2", conv)),
+                   ("CH<sub>4</sub>-C to CH<sub>4</sub>", basis_ratio("CH4-C", "CH4", conv)),
+                   ("N<sub>2</sub>O-N to N<sub>2</sub>O", basis_ratio("N2O-N", "N2O", conv))]
+    alloc = em.drop_duplicates(["pathway", "land_use", "subtype", "remaining_or_converted", "category_code"])
+    allocation = (alloc.groupby(["category_code", "land_use", "subtype", "remaining_or_converted"])["pathway"]
+                  .agg(lambda x: ", ".join(sorted(set(x)))).reset_index().to_dict("records"))
+
+    paragraph = _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas, result.activity)
+    return {
+        "s": s, "result": result, "base": base, "latest": latest, "years": years,
+        "version": result.version, "compile_date": result.compile_date,
+        "hashes": sorted(result.input_hashes.items()),
+        "total_base": _fmt(total_base), "total_latest": _fmt(total_latest), "total_change": _pct(total_latest, total_base),
+        "by_gas": by_gas, "by_category": by_category, "by_region": by_region, "paragraph": paragraph,
+        "cautions": CAUTIONS, "unverified": sorted(unverified_used["factor_id"]),
+        "rows": rows, "never": never, "notation_keys": NOTATION_KEYS,
+        "charts": chart_svgs if chart_svgs is not None else charts.all_charts(result),
+        "findings": findings.to_dict("records"),
+        "methods": methods, "conversions": [(n, f"{v:.5f}") for n, v in conversions],
+        "gwp": sorted(gwp.items()), "allocation": allocation, "register": factor_sources,
+        "references": _references(result),
+        "settings_table": s.as_table(),
+        "glossary": GLOSSARY,
+    }
+
+
+def _merge_reasons(reasons: pd.Series) -> str:
+    """Distinct reasons of a row over the years shown, with "reported under" codes merged."""
+    parts, under = [], set()
+    for text in reasons:
+        for part in str(text).split("; "):
+            if part.startswith("reported under "):
+                under.update(code.strip() for code in part[len("reported under "):].split(","))
+            elif part and part not in parts:
+                parts.append(part)
+    if under:
+        parts.append("IE: reported under " + ", ".join(sorted(under)))
+    return "; ".join(parts)
+
+
+def _describe(r) -> str:
+    parts = [r["climate_zone"], r["land_use"].replace("_", " "), r["soil_status"]]
+    for key in ("nutrient_status", "drainage_depth", "subtype"):
+        if r[key]:
+            parts.append(r[key].replace("_", " "))
+    return ", ".join(parts)
+
+
+def _register(result) -> list[dict]:
+    f = result.factors_used
+    em = result.emissions[result.emissions["notation_key"] == ""]
+    use = pd.concat([em[["factor_id", "category_code", "land_use", "climate_zone", "soil_status", "nutrient_status",
+                         "drainage_depth", "subtype"]],
+                     em.loc[em["parameter_id"] != "", ["parameter_id", "category_code", "land_use", "climate_zone",
+                                                       "soil_status", "nutrient_status", "drainage_depth", "subtype"]]
+                     .rename(columns={"parameter_id": "factor_id"})])
+    out = []
+    reg = result.library.register.set_index("factor_id")
+    replaced = em[(em["default_factor_id"] != em["factor_id"]) & (em["default_factor_id"] != "")]
+    replaced = replaced.groupby("factor_id")["default_factor_id"].agg(lambda x: sorted(set(x)))
+    for _, row in f.sort_values(["factor_set", "factor_id"]).iterrows():
+        u = use[use["factor_id"] == row["factor_id"]].drop_duplicates(
+            ["land_use", "climate_zone", "soil_status", "nutrient_status", "drainage_depth", "subtype"])
+        interval = "" if pd.isna(row["ci_low"]) else f"{row['ci_low']:g} to {row['ci_high']:g}"
+        defaults = []
+        for d in replaced.get(row["factor_id"], []):
+            if d in reg.index:
+                defaults.append(f"{d} ({reg.loc[d, 'value']:g} {reg.loc[d, 'unit']})")
+        out.append({
+            "id": row["factor_id"], "quantity": row["quantity"], "value": f"{row['value']:g}", "unit": row["unit"],
+            "interval": interval, "tier": row["tier"], "verification": row["verification"],
+            "note": row["verification_note"], "citation": row["citation"],
+            "ref": row["source_id"] or "override",
+            "locator": ", ".join(x for x in (row["table"], row["row_label"],
+                                             f"p. {row['page']}" if row["page"] not in ("", "not recorded") else "page not recorded")
+                                 if x),
+            "strata": [_describe(r) for _, r in u.iterrows()],
+            "categories": sorted(set(u["category_code"])),
+            "is_override": row["factor_set"] == "override", "replaces": defaults,
+            "region": row["region"], "years": (f"{int(row['first_year'])}-{int(row['last_year'])}"
+                                               if row["factor_set"] == "override" else ""),
+            "review": row.get("review_result", ""), "reviewed_by": row.get("reviewed_by", ""),
+        })
+    return out
+
+
+def _references(result) -> list[tuple[str, str]]:
+    used = set(result.factors_used["source_id"]) - {""}
+    src = result.library.sources
+    return [(sid, cit) for sid, cit in zip(src["source_id"], src["citation"]) if sid in used]
+
+
+def _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas, activity) -> str:
+    """A short paragraph written from the numbers: level, change, largest contributors and changes."""
+    if not by_category:
+        return "No emissions or removals were estimated."
+    direction = "rose" if total_latest > total_base else "fell" if total_latest < total_base else "stayed"
+    change = _pct(total_latest, total_base)
+    top = max(by_category, key=lambda r: abs(r["raw_latest"]))
+    share = abs(top["raw_latest"]) / sum(abs(r["raw_latest"]) for r in by_category) * 100
+    mover = max(by_category, key=lambda r: abs(r["raw_change"]))
+    gas_top = max(by_gas, key=lambda r: abs(r["raw_latest"]))
+    area = activity.groupby(["year", "soil_status"])["area_ha"].sum().unstack(fill_value=0.0)
+    rewet_b = float(area.loc[base].get("rewetted", 0.0)) if base in area.index else 0.0
+    rewet_l = float(area.loc[latest].get("rewetted", 0.0)) if latest in area.index else 0.0
+    drained_b = float(area.loc[base].get("drained", 0.0)) if base in area.index else 0.0
+    drained_l = float(area.loc[latest].get("drained", 0.0)) if latest in area.index else 0.0
+    text = (f"Net emissions of organic soils {direction} from {_fmt(total_base)} kt CO2-eq in {base} to "
+            f"{_fmt(total_latest)} kt CO2-eq in {latest} ({change}). "
+            f"The largest category in {latest} is {top['code']} {top['name']} ({_fmt(top['raw_latest'])} kt CO2-eq, "
+            f"{share:.0f} % of the gross total); {gas_top['gas']} is the largest gas. "
+            f"The largest change since {base} is in {mover['code']} {mover['name']} "
+            f"({'+' if mover['raw_change'] >= 0 else chr(8722)}{_fmt(abs(mover['raw_change']))} kt CO2-eq). ")
+    text += (f"Drained area went from {_fmt(drained_b / 1000)} to {_fmt(drained_l / 1000)} thousand ha and rewetted "
+             f"area from {_fmt(rewet_b / 1000)} to {_fmt(rewet_l / 1000)} thousand ha.")
+    return text
+
+
+GLOSSARY = [
+    ("stratum", "one combination of region, climate zone, land use, soil status, nutrient status, drainage depth, "
+                "subtype and remaining/converted status, with its area in a year"),
+    ("pathway", "a route of emission: on-site CO2, CO2 from dissolved organic carbon (DOC), CH4 from the soil "
+                "surface, CH4 from ditches, N2O, and the gases of fires"),
+    ("Tier 1 default", "a factor printed in the IPCC guidance for use where no national data exist"),
+    ("Tier 2 / Tier 3", "country- or region-specific factors / models and measurements"),
+    ("CO2-eq", "mass of a gas times its 100-year global warming potential (GWP100)"),
+    ("95 % interval", "the range printed with a factor, within which the true mean lies with 95 % probability"),
+    ("DOC", "dissolved organic carbon, exported by drainage water and mostly emitted as CO2 downstream"),
+    ("from_memory", "a shipped factor entered from the published table but not yet checked against its text"),
+]
+
+
+def render_html(result, chart_svgs: dict[str, str] | None = None) -> str:
+    env = Environment(loader=FileSystemLoader(str(resource_dir("report_templates"))),
+                      autoescape=select_autoescape(["html", "j2"]), trim_blocks=True, lstrip_blocks=True)
+    context = build_context(result, chart_svgs)
+    css = (resource_dir("report_templates") / "report.css").read_text(encoding="utf-8")
+    return env.get_template("report.html.j2").render(**context, css=css)
+
+
+def write_report(result, folder: Path) -> RestrictedFetcher:
+    """Write report.html and report.pdf; return the fetcher (its ``refused`` list names what was refused)."""
+    from weasyprint import HTML
+
+    html = render_html(result)
+    (folder / "report.html").write_text(html, encoding="utf-8")
+    fetcher = RestrictedFetcher(resource_dir("report_templates"))
+    document = HTML(string=html, base_url=str(resource_dir("report_templates")) + "/", url_fetcher=fetcher).render()
+    document.write_pdf(folder / "report.pdf", pdf_identifier=_identifier(result))
+    result._report_document = document  # reused by write_archive: the layout is done once
+    return fetcher
+
+
+def write_archive(result, folder: Path) -> None:
+    """report-archive.pdf: PDF/A-3b carrying emissions.csv, datapackage.json and manifest.json as attachments."""
+    from weasyprint import HTML, Attachment
+
+    document = getattr(result, "_report_document", None)
+    if document is None:
+        html = (folder / "report.html").read_text(encoding="utf-8")
+        fetcher = RestrictedFetcher(resource_dir("report_templates"))
+        document = HTML(string=html, base_url=str(resource_dir("report_templates")) + "/", url_fetcher=fetcher).render()
+    stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00+00:00")
+    attachments = []
+    for name, description in (("emissions.csv", "tidy result table"),
+                              ("datapackage.json", "table schema of emissions.csv"),
+                              ("manifest.json", "run manifest")):
+        attachments.append(Attachment(string=(folder / name).read_bytes(), name=name, description=description,
+                                      created=stamp, modified=stamp, relationship="Data"))
+    document.write_pdf(folder / "report-archive.pdf", pdf_variant="pdf/a-3b", attachments=attachments,
+                       pdf_identifier=_identifier(result))
+
+
+def _identifier(result) -> bytes:
+    import hashlib
+
+    digest = hashlib.sha256("|".join(f"{k}={v}" for k, v in sorted(result.input_hashes.items())).encode())
+    return digest.hexdigest()[:32].encode()
