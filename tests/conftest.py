@@ -25,7 +25,7 @@ def demo_result():
 @pytest.fixture(scope="session")
 def demo_output(demo_result, tmp_path_factory):
     out = tmp_path_factory.mktemp("demo") / "out"
-    demo_result.write(out)
+    demo_result.write(out, report=False)
     return out
 
 

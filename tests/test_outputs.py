@@ -67,7 +67,7 @@ def test_user_text_is_never_a_formula(tmp_path, demo_copy):
     settings = demo_copy.read_text().replace('overrides = "overrides.csv"\n', "")
     demo_copy.write_text(settings)
     out = tmp_path / "out"
-    compile_inventory(demo_copy).write(out)
+    compile_inventory(demo_copy).write(out, report=False)
     ws = openpyxl.load_workbook(out / "inventory.xlsx")["strata"]
     col = [c.value for c in ws[1]].index("region") + 1
     cells = [ws.cell(r, col) for r in range(2, ws.max_row + 1)]
@@ -86,15 +86,15 @@ def test_manifest(demo_output, demo_result):
 
 def test_two_compiles_are_byte_identical(tmp_path, demo_result):
     a, b = tmp_path / "a", tmp_path / "b"
-    demo_result.write(a)
-    compile_inventory(demo_result.settings).write(b)
+    demo_result.write(a, report=False)
+    compile_inventory(demo_result.settings).write(b, report=False)
     for name in ("emissions.csv", "datapackage.json", "inventory.xlsx", "manifest.json"):
         assert sha(a / name) == sha(b / name), name
 
 
 def test_failed_write_leaves_previous_output_untouched(tmp_path, demo_result, monkeypatch):
     out = tmp_path / "out"
-    demo_result.write(out)
+    demo_result.write(out, report=False)
     before = {p.name: sha(p) for p in out.iterdir()}
 
     def boom(*args, **kwargs):
@@ -102,7 +102,7 @@ def test_failed_write_leaves_previous_output_untouched(tmp_path, demo_result, mo
 
     monkeypatch.setattr("compiler.render.outputs.write_workbook", boom)
     with pytest.raises(RuntimeError):
-        demo_result.write(out)
+        demo_result.write(out, report=False)
     assert {p.name: sha(p) for p in out.iterdir()} == before
     assert [p.name for p in tmp_path.iterdir()] == ["out"]  # no temporary folder left behind
 
@@ -112,5 +112,5 @@ def test_refuses_to_overwrite_a_foreign_folder(tmp_path, demo_result):
     out.mkdir()
     (out / "notes.txt").write_text("keep me")
     with pytest.raises(Exception, match="not written by this tool"):
-        demo_result.write(out)
+        demo_result.write(out, report=False)
     assert (out / "notes.txt").read_text() == "keep me"

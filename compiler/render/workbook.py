@@ -149,10 +149,11 @@ def write_workbook(result, path: Path) -> None:
            "co2eq_t": FORMATS["t"], "emission_basis_t": FORMATS["t"], "factor_value": FORMATS["factor"],
            "parameter_value": FORMATS["factor"], "year": FORMATS["int"], "input_row": FORMATS["int"]}
     parts = max(1, int(np.ceil(len(em) / chunk)))
+    bulk: dict[int, pd.DataFrame] = {}  # sheet number in the file -> rows written as XML after saving
     for i in range(parts):
         title = "strata" if parts == 1 else f"strata_{i + 1}"
-        _sheet(wb, title, EXPORT_COLUMNS, _records(em.iloc[i * chunk:(i + 1) * chunk], EXPORT_COLUMNS), fmt,
-               {"notation_reason": 50, "equation": 30})
+        _sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30})
+        bulk[len(wb.worksheets)] = em.iloc[i * chunk:(i + 1) * chunk][EXPORT_COLUMNS]
 
     # factors used
     f = result.factors_used
@@ -179,10 +180,45 @@ def write_workbook(result, path: Path) -> None:
     wb.properties.created = stamp
     buffer = io.BytesIO()
     wb.save(buffer)
-    path.write_bytes(_fix_zip(buffer.getvalue(), stamp))
+    path.write_bytes(_fix_zip(buffer.getvalue(), stamp, bulk))
 
 
-def _fix_zip(data: bytes, stamp: _dt.datetime) -> bytes:
+_XML_ESCAPES = [("&", "&amp;"), ("<", "&lt;"), (">", "&gt;")]
+_XML_ILLEGAL = r"[\x00-\x08\x0b\x0c\x0e-\x1f]"
+
+
+def _rows_xml(frame: pd.DataFrame, first_row: int) -> str:
+    """Rows of a sheet as SpreadsheetML, built column by column (vectorised, no loop over rows).
+
+    Text is written as inline strings (never formulas), numbers as numbers, blanks as absent cells.
+    """
+    from openpyxl.utils import get_column_letter
+
+    n = len(frame)
+    if n == 0:
+        return ""
+    numbers = pd.Series(np.arange(first_row, first_row + n), index=frame.index).astype(str)
+    row_xml = pd.Series("", index=frame.index)
+    for j, col in enumerate(frame.columns):
+        ref = get_column_letter(j + 1) + numbers
+        values = frame[col]
+        if pd.api.types.is_numeric_dtype(values):
+            finite = values.notna() & np.isfinite(values.astype(float))
+            text = values.astype(float).map(repr).where(finite, "")
+            text = text.str.replace(r"\.0$", "", regex=True) if pd.api.types.is_integer_dtype(values) else text
+            cell = ('<c r="' + ref + '"><v>' + text + "</v></c>").where(finite, "")
+        else:
+            text = values.astype(object).where(values.notna(), "").astype(str)
+            for a, b in _XML_ESCAPES:
+                text = text.str.replace(a, b, regex=False)
+            text = text.str.replace(_XML_ILLEGAL, "", regex=True)
+            cell = ('<c r="' + ref + '" t="inlineStr"><is><t xml:space="preserve">' + text + "</t></is></c>").where(
+                text != "", "")
+        row_xml = row_xml + cell
+    return ("<row r=\"" + numbers + "\">" + row_xml + "</row>").str.cat()
+
+
+def _fix_zip(data: bytes, stamp: _dt.datetime, bulk: dict[int, pd.DataFrame] | None = None) -> bytes:
     """Same bytes for the same content: fixed entry dates and document timestamps."""
     src = zipfile.ZipFile(io.BytesIO(data))
     out = io.BytesIO()
@@ -190,6 +226,10 @@ def _fix_zip(data: bytes, stamp: _dt.datetime) -> bytes:
     with zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
         for info in src.infolist():
             content = src.read(info.filename)
+            sheet = re.fullmatch(r"xl/worksheets/sheet(\d+)\.xml", info.filename)
+            if sheet and bulk and int(sheet.group(1)) in bulk:
+                rows = _rows_xml(bulk[int(sheet.group(1))], 2).encode("utf-8")
+                content = content.replace(b"</row></sheetData>", b"</row>" + rows + b"</sheetData>", 1)
             if info.filename == "docProps/core.xml":
                 content = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)",
                                  rb"\g<1>" + iso.encode() + rb"\g<2>", content)
