@@ -58,7 +58,7 @@ def category_table(emissions: pd.DataFrame, library: FactorLibrary, years) -> pd
     sums = est.groupby(cell, as_index=False).agg(
         emission_t=("emission_t", "sum"), co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)))
     # Area of the strata behind a cell, each stratum row counted once (not once per pathway).
-    area = (est.drop_duplicates(cell + ["input_file", "input_row"]).groupby(cell, as_index=False)["area_ha"].sum())
+    area = (est.drop_duplicates(cell + ["input_file", "record_id"]).groupby(cell, as_index=False)["area_ha"].sum())
     frame = frame.merge(sums, on=cell, how="left").merge(area, on=cell, how="left")
     # Notation rows, collapsed per cell with their reasons.
     notes = emissions[emissions["notation_key"] != ""]

@@ -36,7 +36,7 @@ STRATUM_COLUMNS = ["year", "region", "climate_zone", "land_use", "soil_status", 
 RESULT_COLUMNS = [*STRATUM_COLUMNS, "fire_type", "pathway", "gas", "area_ha", "area_basis_ha", "factor_id",
                   "default_factor_id", "factor_value", "factor_unit", "tier", "parameter_id", "parameter_value", "parameter_unit",
                   "emission_basis", "emission_basis_t", "emission_t", "conversion", "notation_key", "notation_reason", "equation",
-                  "input_file", "input_row"]
+                  "activity_source", "input_file", "input_row", "record_id"]
 
 
 @dataclass
@@ -190,6 +190,8 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
     out["area_ha"] = rows[area_column].astype(float)
     out["input_file"] = rows.attrs.get("file", "")
     out["input_row"] = rows[ROW].astype(int)
+    out["record_id"] = rows.index.to_numpy()
+    out["activity_source"] = rows["activity_source"] if "activity_source" in rows else "reported"
     out["equation"] = cov["equation"]
     for col in ("factor_id", "default_factor_id", "factor_unit", "tier", "parameter_id", "parameter_unit", "emission_basis",
                 "notation_key", "notation_reason"):

@@ -23,6 +23,7 @@ from .errors import Finding, FindingLog, InputError
 from .factors import FactorLibrary, file_sha256, load_library
 from .metrics import co2_equivalent, gwp_table
 from .settings import Settings, load_settings
+from .timeseries import fill_gaps
 from .units import conversion_factor
 
 EXPORT_COLUMNS = [
@@ -31,7 +32,7 @@ EXPORT_COLUMNS = [
     "emission_t", "co2eq_t",
     "remaining_or_converted", "previous_land_use", "fire_type", "land_category_code", "area_basis_ha",
     "parameter_id", "parameter_value", "parameter_unit", "emission_basis", "emission_basis_t", "conversion", "default_factor_id",
-    "notation_key", "notation_reason", "equation", "input_file", "input_row",
+    "notation_key", "notation_reason", "equation", "activity_source", "input_file", "input_row",
 ]
 
 
@@ -92,6 +93,8 @@ def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> I
     fires = load_fires(settings, log)
     overrides = load_overrides(settings, log)
     review = load_review(settings, log, set(library.register["factor_id"]))
+    log.raise_if_errors()
+    activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region)
     log.raise_if_errors()
 
     engine = compute(activity, fires, overrides, library, settings, log)

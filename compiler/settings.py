@@ -60,6 +60,12 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "default_area_pct": ((int, float), 10.0, None,
                              "95 % half-width of area data in percent where the activity row gives none"),
     },
+    "timeseries": {
+        "fill": ((str,), "none", ("none", "interpolate", "extrapolate", "both"),
+                 "gap filling of the area series: none (gaps are errors), interpolate, extrapolate, both"),
+        "trend_years": ((int,), 5, None, "known years used for trend extrapolation"),
+        "fill_by_region": ((dict,), {}, None, "per-region fill mode, e.g. {\"Quillfen\" = \"both\"}"),
+    },
     "limits": {
         "max_input_mb": ((int, float), 512, None, "largest input file read, in MiB"),
     },
@@ -91,6 +97,9 @@ class Settings:
     seed: int = 20130101
     correlate_activity_across_years: bool = True
     default_area_pct: float = 10.0
+    fill: str = "none"
+    trend_years: int = 5
+    fill_by_region: dict = field(default_factory=dict)
     max_input_mb: float = 512
     source: Path | None = None
     raw: dict = field(default_factory=dict, compare=False, repr=False)
@@ -191,6 +200,13 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
     if not 0 <= values["default_area_pct"] <= 1000:
         problems.append(_err("out of range", fname, column="uncertainty.default_area_pct",
                              found=str(values["default_area_pct"]), expected="0 to 1000 (percent)"))
+    for region, mode in values["fill_by_region"].items():
+        if mode not in ("none", "interpolate", "extrapolate", "both"):
+            problems.append(_err("value not accepted", fname, column=f"timeseries.fill_by_region.{region}",
+                                 found=str(mode), expected="none | interpolate | extrapolate | both"))
+    if not 2 <= values["trend_years"] <= 50:
+        problems.append(_err("out of range", fname, column="timeseries.trend_years", found=str(values["trend_years"]),
+                             expected="2 to 50"))
     if values["max_input_mb"] <= 0:
         problems.append(_err("must be positive", fname, column="limits.max_input_mb", found=str(values["max_input_mb"])))
     compile_date = values["compile_date"]
@@ -232,5 +248,6 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         uncertainty_approach=values["approach"], iterations=values["iterations"], seed=values["seed"],
         correlate_activity_across_years=values["correlate_activity_across_years"],
         default_area_pct=float(values["default_area_pct"]),
+        fill=values["fill"], trend_years=values["trend_years"], fill_by_region=dict(values["fill_by_region"]),
         max_input_mb=values["max_input_mb"], source=path.resolve(), raw=data,
     )

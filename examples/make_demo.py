@@ -85,8 +85,14 @@ def main() -> None:
             merged[key][8] += r[8]
         else:
             merged[key] = r
+    # Gaps for the time-series checks: Skarrowdale's statistics for the latest year are not yet in
+    # (extrapolated), and one Vennmarsh forest survey year is missing (interpolated).
+    gaps = [lambda r: r[1] == "Skarrowdale" and r[0] == LAST,
+            lambda r: r[1] == "Vennmarsh" and r[3] == "forest_land" and r[0] == 2003]
     out = []
     for r in merged.values():
+        if any(g(r) for g in gaps):
+            continue
         r = list(r)
         r[8] = f"{r[8]:.1f}"
         out.append(r)

@@ -43,8 +43,9 @@ FIELDS: dict[str, tuple[str, str, str]] = {
     "notation_key": ("string", "", "NA, NE or IE where the pathway has no estimate; blank otherwise"),
     "notation_reason": ("string", "", "explanation of the notation key"),
     "equation": ("string", "", "equation applied"),
+    "activity_source": ("string", "", "reported | interpolated | extrapolated | overlap | surrogate (gap filling)"),
     "input_file": ("string", "", "input file of the stratum or fire row"),
-    "input_row": ("integer", "", "row number in that file (header = 1)"),
+    "input_row": ("integer", "", "row number in that file (header = 1); 0 for a gap-filled stratum-year"),
 }
 
 
