@@ -25,7 +25,8 @@ FINGERPRINTS = [
     ("reporting_allocation.csv", 28, 7, None, "bf4ecb1c13b20ff58f38c1a05ed12ca8d8059c559145192298bd1f82809fbcf4"),
     ("reporting_categories.csv", 18, 5, None, "5e99e555e12484e1b71df1435db9ea07cd200042ddb96f87f89325f1797bb645"),
     ("rewetted_ipcc2013ws.csv", 13, 19, 527.21, "2d0dd3f0216cef86b883531ef90a762c6846f1a14ee11537c71ee838553176fe"),
-    ("sources.csv", 13, 5, None, "97b48b3614242d165b380157ad3b385c5931fa1f397afef40ae2351f4542af36"),
+    ("climate_response_ar5.csv", 28, 13, None, "8ab480c7aaa9052a61280ca1b36f94974b4e9b836ee49df1ffc201eddc9a72eb"),
+    ("sources.csv", 19, 5, None, "2088d399e8df1998cc6afab6888c5a7e3bf3f93bf1353a1fb0e7e5e404d6e65f"),
 ]
 
 
