@@ -35,6 +35,7 @@ class Column:
     required: bool = False
     term: str = ""  # vocabulary name for kind "term"
     default: str = ""
+    blank_is_any: bool = False  # overrides: a blank stratum key means "any value"
 
 
 ACTIVITY_COLUMNS = [
@@ -68,13 +69,13 @@ OVERRIDE_COLUMNS = [
     Column("unit", "text", True),
     Column("source", "text", True),
     Column("override_id", "text"),
-    Column("climate_zone", "term", False, "climate_zone"),
-    Column("land_use", "term", False, "land_use"),
-    Column("soil_status", "term", False, "soil_status"),
-    Column("nutrient_status", "term", False, "nutrient_status"),
-    Column("drainage_depth", "term", False, "drainage_depth"),
-    Column("subtype", "term", False, "subtype"),
-    Column("fire_type", "term", False, "fire_type"),
+    Column("climate_zone", "term", False, "climate_zone", blank_is_any=True),
+    Column("land_use", "term", False, "land_use", blank_is_any=True),
+    Column("soil_status", "term", False, "soil_status", blank_is_any=True),
+    Column("nutrient_status", "term", False, "nutrient_status", blank_is_any=True),
+    Column("drainage_depth", "term", False, "drainage_depth", blank_is_any=True),
+    Column("subtype", "term", False, "subtype", blank_is_any=True),
+    Column("fire_type", "term", False, "fire_type", blank_is_any=True),
     Column("ci_low", "signed"),
     Column("ci_high", "signed"),
     Column("tier", "text", False, default="Tier 2 country-specific"),
@@ -91,6 +92,17 @@ REVIEW_COLUMNS = [
     Column("result", "text", True),
     Column("note", "text"),
 ]
+REVIEW_LOG_COLUMNS = [
+    Column("id", "text", True),
+    Column("year_raised", "year", True),
+    Column("category_code", "text", True),
+    Column("principle", "text", True),
+    Column("finding", "text", True),
+    Column("response", "text"),
+    Column("status", "text", True),
+]
+PRINCIPLES = ("transparency", "accuracy", "consistency", "comparability", "completeness")
+REVIEW_STATUS = ("resolved", "in_progress", "open")
 STRATUM_KEYS = ["year", "region", *KEYS[:-1], "remaining_or_converted", "previous_land_use"]
 
 
@@ -162,6 +174,8 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
         blank = stripped == ""
         if col.kind == "term":
             values, unknown = normalise_column(stripped.where(~blank, col.default), col.term)
+            if col.blank_is_any:
+                unknown.pop("", None)
             if unknown:
                 bad = values.isin(list(unknown))
                 for value, near in unknown.items():
@@ -333,4 +347,30 @@ def load_review(settings: Settings, log: FindingLog, register_ids: set[str]) -> 
     unknown = frame[~frame["factor_id"].isin(list(register_ids))]
     check.rows("error", "review", "factor_id is not in the factor register", unknown, "factor_id",
                unknown["factor_id"], "an id listed by 'histosol factors'")
+    return frame
+
+
+def load_review_log(settings: Settings, log: FindingLog, category_codes: set[str]) -> pd.DataFrame:
+    """Earlier review findings; an open one raised three or more years before the submission is a warning."""
+    if settings.review_log is None:
+        return pd.DataFrame()
+    raw, sheet, notes = read_table(settings.review_log, "", settings.max_input_mb)
+    log.extend(notes)
+    check = _Checker(log, str(settings.review_log), sheet)
+    frame = validate_columns(raw, REVIEW_LOG_COLUMNS, check, None)
+    if frame.empty:
+        return frame
+    for column, accepted in (("principle", PRINCIPLES), ("status", REVIEW_STATUS)):
+        frame[column] = frame[column].map(normalise_text)
+        bad = frame[~frame[column].isin(accepted)]
+        check.rows("error", "review_log", f"unknown {column}", bad, column, bad[column], " | ".join(accepted))
+    unknown = frame[~frame["category_code"].isin(list(category_codes))]
+    check.rows("warning", "review_log", "category_code is not a category of this inventory", unknown,
+               "category_code", unknown["category_code"], "a code of factor_tables/reporting_categories.csv")
+    frame["year_raised"] = frame["year_raised"].astype("Int64")
+    stale = frame[(frame["status"] == "open") & (frame["year_raised"] <= settings.submission_year - 3)]
+    for _, row in stale.iterrows():  # review items: a handful
+        log.add("warning", "review_open", f"review finding {row['id']} ({row['category_code']}, {row['principle']}) "
+                f"raised in {row['year_raised']} is still open", file=str(settings.review_log), row=int(row[ROW]),
+                column="status", found="open", expected="resolved or in_progress within three years")
     return frame

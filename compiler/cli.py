@@ -37,6 +37,19 @@ def _parser() -> argparse.ArgumentParser:
     k = sub.add_parser("check", help="validate all inputs and print every finding; writes nothing")
     k.add_argument("settings", help="settings file (TOML)")
 
+    r = sub.add_parser("compare", help="recalculations: differences between two submissions, with their causes")
+    r.add_argument("previous", help="output folder or emissions.csv(.gz) of the previous submission")
+    r.add_argument("current", help="output folder or emissions.csv(.gz) of the current submission")
+    r.add_argument("--year", type=int, help="only this year (default: every year, summary of the latest)")
+    r.add_argument("--csv", metavar="FILE", help="write the full table (category x gas x year) to FILE")
+
+    t = sub.add_parser("trace", help="show how one reported number was made")
+    t.add_argument("output", help="output folder of a compile")
+    t.add_argument("--category", required=True, help="category code, e.g. 3.B.2.a")
+    t.add_argument("--gas", required=True, choices=["CO2", "CH4", "N2O", "CO"])
+    t.add_argument("--year", required=True, type=int)
+    t.add_argument("--region", help="only this region")
+
     f = sub.add_parser("factors", help="print the factor register")
     f.add_argument("--factor-set", choices=["ipcc2013ws", "ipcc2006"], help="only this factor set")
     f.add_argument("--quantity", help="only this quantity (e.g. ef_co2_c_onsite)")
@@ -75,6 +88,10 @@ def main(argv: list[str] | None = None) -> int:
 def _run(args) -> int:
     if args.command == "factors":
         return _factors(args)
+    if args.command == "compare":
+        return _compare(args)
+    if args.command == "trace":
+        return _trace(args)
     if args.command == "check":
         return _check(Path(args.settings))
     if args.command == "demo":
@@ -115,6 +132,39 @@ def _print_summary(result, folder: Path) -> None:
         if f.severity == "warning":
             print(f"  {f.render()}")
     print(f"  wrote {folder}")
+
+
+def _compare(args) -> int:
+    import pandas as pd
+
+    from .recalculations import PARTS, compare, load_export
+
+    previous, current = load_export(args.previous), load_export(args.current)
+    by_cell, _ = compare(previous, current)
+    if args.csv:
+        by_cell.to_csv(args.csv, index=False, lineterminator="\n")
+    year = args.year or int(by_cell["year"].max())
+    view = by_cell[by_cell["year"] == year]
+    view = view[(view["difference_co2eq_t"].abs() > 1e-9) | (view["difference_t"].abs() > 1e-9)]
+    print(f"Recalculations for {year}: current minus previous, t CO2-eq, split by cause")
+    print("  dE = (A1 - A0) x EF0 [activity change] + A1 x (EF1 - EF0) [factor change, incl. GWP]; "
+          "strata added / removed; allocation change")
+    cols = ["category_code", "gas", "previous_co2eq_t", "current_co2eq_t", "difference_co2eq_t", "difference_pct",
+            *PARTS]
+    with pd.option_context("display.width", 250, "display.max_columns", None, "display.float_format", "{:,.1f}".format):
+        print(view[cols].to_string(index=False) if not view.empty else "  no differences")
+    total = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum().loc[year]
+    print(f"Total {year}: {total['previous_co2eq_t'] / 1000:,.1f} -> {total['current_co2eq_t'] / 1000:,.1f} kt CO2-eq")
+    return EXIT_OK
+
+
+def _trace(args) -> int:
+    from .trace import load_outputs, trace_text
+
+    emissions, factors = load_outputs(args.output)
+    text, _ = trace_text(emissions, factors, args.category, args.gas, args.year, args.region)
+    print(text)
+    return EXIT_OK
 
 
 def _check(settings: Path) -> int:

@@ -33,10 +33,10 @@ class Finding:
     found: str = ""
     expected: str = ""
 
-    def location(self) -> str:
+    def location(self, short: bool = False) -> str:
         parts = []
         if self.file:
-            parts.append(self.file)
+            parts.append(self.file.replace("\\", "/").rsplit("/", 1)[-1] if short else self.file)
         if self.sheet:
             parts.append(f"sheet {self.sheet}")
         if self.row is not None:
@@ -45,13 +45,14 @@ class Finding:
             parts.append(f"column {self.column}")
         return ", ".join(parts)
 
-    def render(self) -> str:
+    def render(self, short: bool = False) -> str:
+        """One line: severity, check, location (file name only when ``short``), message, found, expected."""
         text = self.message
         if self.found != "":
             text += f"; found {self.found!r}"
         if self.expected:
             text += f"; expected {self.expected}"
-        where = self.location()
+        where = self.location(short)
         return f"{self.severity}: [{self.check}] {where + ': ' if where else ''}{text}"
 
     def as_record(self) -> dict:

@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
-from .activity import load_activity, load_fires, load_overrides, load_review
+from .activity import load_activity, load_fires, load_overrides, load_review, load_review_log
 from .categories import allocate, category_table
 from .engine import compute
 from .errors import Finding, FindingLog, InputError
@@ -52,6 +52,8 @@ class InventoryResult:
     compile_date: str = ""
     version: str = __version__
     finding_list: list[Finding] = field(default_factory=list, repr=False)
+    recalculation: dict | None = None  # by_cell, by_row, trend (when a previous submission is given)
+    review_log: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     @property
     def totals(self) -> pd.DataFrame:
@@ -93,6 +95,7 @@ def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> I
     fires = load_fires(settings, log)
     overrides = load_overrides(settings, log)
     review = load_review(settings, log, set(library.register["factor_id"]))
+    review_log = load_review_log(settings, log, set(library.categories["category_code"]))
     log.raise_if_errors()
     activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region)
     log.raise_if_errors()
@@ -116,6 +119,15 @@ def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> I
     categories = category_table(emissions, library, settings.years)
 
     _check_area_balance(activity, emissions, log)
+    recalculation = None
+    if settings.previous_submission is not None:
+        from .recalculations import compare, load_export, trend_effect
+
+        previous = load_export(settings.previous_submission)
+        current = emissions[emissions["notation_key"] == ""]
+        by_cell, by_row = compare(previous, current)
+        recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
+                         **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
     used_ids = set(emissions["factor_id"]) | set(emissions["parameter_id"])
     factors_used = engine.register[engine.register["factor_id"].isin(used_ids)].copy()
     factors_used = _attach_review(factors_used, review)
@@ -135,7 +147,7 @@ def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> I
     return InventoryResult(settings=settings, activity=activity, emissions=emissions,
                            categories=categories, factors_used=factors_used, findings=findings, library=library,
                            input_hashes=hashes, gwp=gwp, compile_date=compile_date,
-                           finding_list=list(log.findings))
+                           finding_list=list(log.findings), recalculation=recalculation, review_log=review_log)
 
 
 def _check_overrides_against_defaults(emissions, register, overrides, settings, log) -> None:

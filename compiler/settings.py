@@ -20,7 +20,8 @@ from .units import MASS_RATIO_CONVENTIONS
 
 FACTOR_SETS = ("ipcc2013ws", "ipcc2006")
 ATTRIBUTE = {"approach": "uncertainty_approach"}  # settings key -> Settings attribute, where they differ
-PATH_KEYS = ("activity", "fires", "overrides", "factor_review", "national_totals", "scenarios")
+PATH_KEYS = ("activity", "fires", "overrides", "factor_review", "national_totals", "scenarios",
+             "previous_submission", "review_log")
 GWP_SETS = ("AR5", "AR4", "AR6", "SAR")
 IPCC2006_TEMPERATE = ("cold_temperate", "warm_temperate")
 
@@ -50,6 +51,8 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "factor_review": ((str,), "", None, "the agency's check of shipped factors (CSV or XLSX)"),
         "national_totals": ((str,), "", None, "rest of the national inventory by year, category and gas (CSV or XLSX)"),
         "scenarios": ((str,), "", None, "scenario definitions (TOML) for 'histosol scenarios'"),
+        "previous_submission": ((str,), "", None, "emissions.csv(.gz) of the previous submission, for recalculations"),
+        "review_log": ((str,), "", None, "earlier review findings and their status (CSV or XLSX)"),
     },
     "uncertainty": {
         "approach": ((str,), "both", ("1", "2", "both"), "Approach 1 (error propagation), 2 (Monte Carlo) or both"),
@@ -92,6 +95,8 @@ class Settings:
     factor_review: Path | None = None
     national_totals: Path | None = None
     scenarios: Path | None = None
+    previous_submission: Path | None = None
+    review_log: Path | None = None
     uncertainty_approach: str = "both"
     iterations: int = 20000
     seed: int = 20130101
@@ -197,6 +202,8 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
     if values["iterations"] < 100 or values["iterations"] > 10_000_000:
         problems.append(_err("iterations out of range", fname, column="uncertainty.iterations",
                              found=str(values["iterations"]), expected="100 to 10,000,000"))
+    if values["seed"] < 0:
+        problems.append(_err("must be zero or positive", fname, column="uncertainty.seed", found=str(values["seed"])))
     if not 0 <= values["default_area_pct"] <= 1000:
         problems.append(_err("out of range", fname, column="uncertainty.default_area_pct",
                              found=str(values["default_area_pct"]), expected="0 to 1000 (percent)"))
@@ -245,6 +252,7 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         activity=paths["activity"], activity_sheet=values["activity_sheet"], fires=paths["fires"],
         overrides=paths["overrides"], factor_review=paths["factor_review"],
         national_totals=paths["national_totals"], scenarios=paths["scenarios"],
+        previous_submission=paths["previous_submission"], review_log=paths["review_log"],
         uncertainty_approach=values["approach"], iterations=values["iterations"], seed=values["seed"],
         correlate_activity_across_years=values["correlate_activity_across_years"],
         default_area_pct=float(values["default_area_pct"]),

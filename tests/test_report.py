@@ -10,8 +10,8 @@ from pypdf import PdfReader
 from compiler import compile_inventory
 from compiler.render.report import CAUTIONS, render_html
 
-SECTIONS = ["Summary", "Cautions", "Results by category and gas", "Charts", "Input findings", "Methods",
-            "Factor register", "Glossary and notation keys", "Reproducibility"]
+SECTIONS = ["Summary", "Cautions", "Results by category and gas", "Charts", "Input findings", "Recalculations",
+            "Previous review findings", "Methods", "Factor register", "Glossary and notation keys", "Reproducibility"]
 
 
 @pytest.fixture(scope="module")
@@ -38,7 +38,7 @@ def test_every_section_heading_and_page_numbers(pdf_text, archived):
     n = len(reader.pages)
     assert f"Page 2 of {n}" in reader.pages[1].extract_text()
     titles = [item.title for item in reader.outline if not isinstance(item, list)]
-    assert titles[:len(SECTIONS)] == SECTIONS  # a bookmark for every section
+    assert [t for t in titles if t in SECTIONS] == SECTIONS  # a bookmark for every section, in order
 
 
 def test_summary_totals_equal_the_workbook(pdf_text, archived):

@@ -115,9 +115,23 @@ def contribution_by_gas(emissions: pd.DataFrame) -> str:
 
 
 def all_charts(result) -> dict[str, str]:
-    return {
+    out = {
         "pathway": emissions_by_pathway(result.emissions),
         "land_use": emissions_by_land_use(result.emissions),
         "area": area_by_status(result.activity),
         "gas": contribution_by_gas(result.emissions),
     }
+    if result.recalculation is not None:
+        out["recalculation"] = recalculation_series(result.recalculation["by_cell"])
+    return out
+
+
+def recalculation_series(by_cell: pd.DataFrame) -> str:
+    tot = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum() / 1000
+    fig, ax = plt.subplots(figsize=(6.2, 2.4))
+    ax.plot(tot.index, tot["previous_co2eq_t"], color="#9b6b43", linestyle="--", linewidth=1.4, label="previous submission")
+    ax.plot(tot.index, tot["current_co2eq_t"], color="#2f4858", linewidth=1.6, label="this submission")
+    ax.set_ylabel("kt CO2-eq per year")
+    ax.set_title("Net emissions: previous and current submission", loc="left")
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+    return _svg(fig)

@@ -17,7 +17,7 @@ from pathlib import Path
 from .. import __version__
 from ..errors import CompilerError, InputError, Finding
 from .manifest import manifest
-from .tidy import datapackage, write_datapackage, write_emissions_csv
+from .tidy import datapackage, write_datapackage, write_emissions_csv, write_factors_csv
 from .workbook import write_workbook
 
 MARKER = ".histosol-output"
@@ -38,6 +38,7 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
 
         write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv")
         write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__), tmp / "datapackage.json")
+        write_factors_csv(result.factors_used, tmp / "factors.csv")
         write_workbook(result, tmp / "inventory.xlsx")
         if report or archive:
             from .report import write_report

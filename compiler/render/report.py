@@ -204,6 +204,26 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
     allocation = (alloc.groupby(["category_code", "land_use", "subtype", "remaining_or_converted"])["pathway"]
                   .agg(lambda x: ", ".join(sorted(set(x)))).reset_index().to_dict("records"))
 
+    recalc = None
+    if result.recalculation is not None:
+        rc = result.recalculation["by_cell"]
+        last_common = int(rc["year"].max())
+        view = rc[rc["year"].isin([base, last_common])]
+        view = view[(view["difference_co2eq_t"].abs() > 0.05) | (view["difference_t"].abs() > 1e-6)]
+        recalc = {"file": result.recalculation["file"], "years": (base, last_common),
+                  "previous_trend": f"{result.recalculation['previous_trend_pct']:+.2f} %".replace("-", "\u2212"),
+                  "current_trend": f"{result.recalculation['current_trend_pct']:+.2f} %".replace("-", "\u2212"),
+                  "rows": [{**r, **{k: _fmt(r[k] / 1000, 2) for k in ("previous_co2eq_t", "current_co2eq_t",
+                                                                      "difference_co2eq_t", "activity_change",
+                                                                      "factor_change", "strata_added", "strata_removed",
+                                                                      "allocation_change")},
+                            "pct": "" if np.isnan(r["difference_pct"]) else f"{r['difference_pct']:+.1f} %"}
+                           for r in view.to_dict("records")]}
+    review = []
+    if result.review_log is not None and not result.review_log.empty:
+        for r in result.review_log.to_dict("records"):
+            related = [f for f in result.finding_list if r["category_code"] and r["category_code"] in f.message]
+            review.append({**r, "related": [f.render(short=True) for f in related]})
     paragraph = _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas, result.activity)
     return {
         "s": s, "result": result, "base": base, "latest": latest, "years": years,
@@ -218,7 +238,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         "methods": methods, "conversions": [(n, f"{v:.5f}") for n, v in conversions],
         "gwp": sorted(gwp.items()), "allocation": allocation, "register": factor_sources,
         "references": _references(result),
-        "settings_table": s.as_table(),
+        "settings_table": s.as_table(), "recalc": recalc, "review": review,
         "glossary": GLOSSARY,
     }
 

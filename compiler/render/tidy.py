@@ -54,6 +54,12 @@ def write_emissions_csv(frame: pd.DataFrame, path: Path) -> None:
 
 
 def datapackage(name: str, columns: list[str], version: str) -> dict:
+    package = _datapackage(name, columns, version)
+    package["resources"].reverse()  # emissions first, then factors
+    return package
+
+
+def _datapackage(name: str, columns: list[str], version: str) -> dict:
     fields = []
     for col in columns:
         ftype, unit, description = FIELDS[col]
@@ -67,6 +73,15 @@ def datapackage(name: str, columns: list[str], version: str) -> dict:
         "profile": "tabular-data-package",
         "created_with": f"histosol {version}",
         "resources": [{
+            "name": "factors",
+            "path": "factors.csv",
+            "profile": "tabular-data-resource",
+            "format": "csv",
+            "mediatype": "text/csv",
+            "encoding": "utf-8",
+            "schema": {"fields": [{"name": c, "type": "number" if c in ("value", "ci_low", "ci_high") else "string"}
+                                  for c in FACTOR_COLUMNS], "missingValues": [""]},
+        }, {
             "name": "emissions",
             "path": "emissions.csv",
             "profile": "tabular-data-resource",
@@ -80,3 +95,19 @@ def datapackage(name: str, columns: list[str], version: str) -> dict:
 
 def write_datapackage(package: dict, path: Path) -> None:
     path.write_text(json.dumps(package, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
+
+
+FACTOR_COLUMNS = ["factor_id", "factor_set", "quantity", "climate_zone", "land_use", "soil_status", "nutrient_status",
+                  "drainage_depth", "subtype", "fire_type", "value", "unit", "ci_low", "ci_high", "tier",
+                  "verification", "verification_note", "source_id", "citation", "table", "row_label", "page",
+                  "region", "first_year", "last_year", "review_result", "reviewed_by", "reviewed_on",
+                  "reviewed_against"]
+
+
+def write_factors_csv(factors: pd.DataFrame, path: Path) -> None:
+    """factors.csv: every factor used, with its source and locator (what a reviewer's trace reads)."""
+    frame = factors.copy()
+    for col in FACTOR_COLUMNS:
+        if col not in frame:
+            frame[col] = ""
+    frame[FACTOR_COLUMNS].sort_values("factor_id").to_csv(path, index=False, lineterminator="\n", encoding="utf-8")

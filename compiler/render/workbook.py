@@ -155,6 +155,45 @@ def write_workbook(result, path: Path) -> None:
         _sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30})
         bulk[len(wb.worksheets)] = em.iloc[i * chunk:(i + 1) * chunk][EXPORT_COLUMNS]
 
+    # trace: every category-gas cell of the base and latest year, linked to its strata and factor rows
+    strata_row = pd.Series(np.arange(len(em)) + 2, index=em.index)  # row numbers in the strata sheet
+    est = em[(em["notation_key"] == "") & em["year"].isin([base, latest])]
+    cell_total = est.groupby(["category_code", "gas", "year"])["emission_t"].transform("sum")
+    factor_rows = {fid: i + 3 for i, fid in enumerate(result.factors_used["factor_id"])}  # factors sheet: note + header
+    trace = pd.DataFrame({
+        "category_code": est["category_code"], "gas": est["gas"], "year": est["year"], "cell_total_t": cell_total,
+        "region": est["region"], "pathway": est["pathway"], "land_use": est["land_use"],
+        "climate_zone": est["climate_zone"], "soil_status": est["soil_status"],
+        "nutrient_status": est["nutrient_status"], "drainage_depth": est["drainage_depth"], "subtype": est["subtype"],
+        "area_basis_ha": est["area_basis_ha"], "factor_id": est["factor_id"], "factor_value": est["factor_value"],
+        "factor_unit": est["factor_unit"], "conversion": est["conversion"], "emission_t": est["emission_t"],
+        "strata_sheet_row": strata_row[est.index] if parts == 1 else np.nan,
+        "factors_sheet_row": est["factor_id"].map(factor_rows),
+    }).sort_values(["year", "category_code", "gas", "region", "pathway"])
+    tcols = list(trace.columns)
+    _sheet(wb, "trace", tcols, _records(trace, tcols),
+           {"cell_total_t": FORMATS["t"], "emission_t": FORMATS["t"], "area_basis_ha": FORMATS["ha"],
+            "factor_value": FORMATS["factor"], "strata_sheet_row": FORMATS["int"], "factors_sheet_row": FORMATS["int"]},
+           {"factor_id": 30},
+           [f"Every category-gas cell of {base} and {latest}: its strata rows (row number in the strata sheet), "
+            "factor (row in the factors sheet), and emission_t = area_basis_ha x factor_value x conversion "
+            "(fires: burnt area x fuel x factor x conversion); the rows of a cell add up to cell_total_t."])
+
+    if result.recalculation is not None:
+        rc = result.recalculation["by_cell"]
+        rcols = list(rc.columns)
+        _sheet(wb, "recalculations", rcols, _records(rc, rcols), {c: FORMATS["t"] for c in rcols[3:]},
+               notes=[f"Current submission minus the previous one ({result.recalculation['file']}), t and t CO2-eq. "
+                      "dE = (A1 - A0) x EF0 (activity change) + A1 x (EF1 - EF0) (factor change, including GWP or "
+                      "factor-set changes); strata added or removed; allocation change. The parts add up to "
+                      "difference_co2eq_t.",
+                      f"Trend {base}-latest common year: previous {result.recalculation['previous_trend_pct']:.2f} %, "
+                      f"current {result.recalculation['current_trend_pct']:.2f} %."])
+    if result.review_log is not None and not result.review_log.empty:
+        rl = result.review_log.drop(columns=[c for c in ("_row", "_bad") if c in result.review_log])
+        _sheet(wb, "review_log", list(rl.columns), _records(rl, list(rl.columns)), widths={"finding": 60,
+                                                                                             "response": 50})
+
     # factors used
     f = result.factors_used
     fcols = ["factor_id", "factor_set", "quantity", "climate_zone", "land_use", "soil_status", "nutrient_status",

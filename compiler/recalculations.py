@@ -1,0 +1,130 @@
+"""Recalculations: the current submission against the previous one, with the cause of every difference.
+
+Rows of the two tidy exports are matched on year, region, stratum and
+pathway. For a matched row, with A the area and EF = E / A the implied
+factor in t CO2-eq per ha (which carries the factor value, the unit
+conversion and the GWP):
+
+    dE = (A1 - A0) x EF0  +  A1 x (EF1 - EF0)
+         activity change     factor change (including a GWP set or factor-set change)
+
+which equals E1 - E0 exactly. Rows only in the current export are "strata
+added", rows only in the previous "strata removed"; a matched row whose
+category changed moves its whole emission: -E0 from the old category and +E1
+to the new, both "allocation". The parts add up to the total difference of
+every category, gas and year.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .errors import Finding, InputError
+
+MATCH_KEYS = ["year", "region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth",
+              "subtype", "remaining_or_converted", "previous_land_use", "fire_type", "pathway", "gas"]
+PARTS = ["activity_change", "factor_change", "strata_added", "strata_removed", "allocation_change"]
+NEEDED = set(MATCH_KEYS) | {"category_code", "area_ha", "emission_t", "co2eq_t", "notation_key", "factor_id"}
+
+
+def load_export(path: str | Path) -> pd.DataFrame:
+    """Read emissions.csv (or .csv.gz) from an output folder or a file path."""
+    path = Path(path)
+    if path.is_dir():
+        candidates = [path / "emissions.csv", path / "emissions.csv.gz"]
+        path = next((c for c in candidates if c.is_file()), candidates[0])
+    if not path.is_file():
+        raise InputError([Finding("error", "compare", "no emissions.csv found", file=str(path),
+                                  expected="an output folder of histosol or an emissions.csv file")])
+    try:
+        frame = pd.read_csv(path, dtype={k: str for k in MATCH_KEYS if k != "year"}, keep_default_na=False,
+                            na_values={"emission_t": [""], "co2eq_t": [""], "area_ha": [""]})
+    except (ValueError, UnicodeDecodeError, pd.errors.ParserError) as exc:
+        raise InputError([Finding("error", "compare", f"not a readable emissions.csv ({exc})", file=str(path))]) from None
+    missing = sorted(NEEDED - set(frame.columns))
+    if missing:
+        raise InputError([Finding("error", "compare", "not an emissions export of this tool: columns missing",
+                                  file=str(path), column=", ".join(missing))])
+    frame = frame[frame["notation_key"] == ""].copy()
+    frame["co2eq_t"] = pd.to_numeric(frame["co2eq_t"], errors="coerce")
+    frame["year"] = frame["year"].astype(int)
+    frame.attrs["file"] = str(path)
+    return frame
+
+
+def compare(previous: pd.DataFrame, current: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Return (by_cell, by_row): differences by category, gas and year with their causes, and per row."""
+    # Only the years both submissions cover: a year new in the current one is not a recalculation.
+    common = sorted(set(previous["year"]) & set(current["year"]))
+    previous = previous[previous["year"].isin(common)]
+    current = current[current["year"].isin(common)]
+    cols = MATCH_KEYS + ["category_code", "area_ha", "emission_t", "co2eq_t", "factor_id"]
+    prev = previous[cols].groupby(MATCH_KEYS + ["category_code"], as_index=False, dropna=False).agg(
+        area_ha=("area_ha", "sum"), emission_t=("emission_t", "sum"), co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)),
+        factor_id=("factor_id", "first"))
+    cur = current[cols].groupby(MATCH_KEYS + ["category_code"], as_index=False, dropna=False).agg(
+        area_ha=("area_ha", "sum"), emission_t=("emission_t", "sum"), co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)),
+        factor_id=("factor_id", "first"))
+    rows = prev.merge(cur, on=MATCH_KEYS, how="outer", suffixes=("_0", "_1"), indicator=True)
+    both = rows["_merge"] == "both"
+    e0 = rows["co2eq_t_0"].fillna(0.0).to_numpy()
+    e1 = rows["co2eq_t_1"].fillna(0.0).to_numpy()
+    a0 = rows["area_ha_0"].fillna(0.0).to_numpy()
+    a1 = rows["area_ha_1"].fillna(0.0).to_numpy()
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ef0 = np.where(a0 != 0, e0 / np.where(a0 != 0, a0, 1.0), 0.0)
+    same_cat = both & (rows["category_code_0"] == rows["category_code_1"])
+    moved = both & ~same_cat
+    activity = np.where(same_cat, (a1 - a0) * ef0, 0.0)
+    factor = np.where(same_cat, (e1 - e0) - activity, 0.0)  # = A1 x (EF1 - EF0), exact by construction
+    rows["activity_change"] = activity
+    rows["factor_change"] = factor
+    rows["strata_added"] = np.where(rows["_merge"] == "right_only", e1, 0.0)
+    rows["strata_removed"] = np.where(rows["_merge"] == "left_only", -e0, 0.0)
+    rows["factor_changed"] = both & (rows["factor_id_0"] != rows["factor_id_1"])
+
+    # Per category: current-side parts in the current category, previous-side parts in the old one.
+    cur_side = rows.assign(category_code=rows["category_code_1"])
+    cur_side = cur_side[cur_side["_merge"] != "left_only"]
+    cur_side = cur_side.assign(allocation_change=np.where(moved[cur_side.index], e1[cur_side.index], 0.0))
+    old_side = rows[rows["_merge"] != "right_only"].assign(category_code=lambda d: d["category_code_0"])
+    old_parts = pd.DataFrame({
+        "category_code": old_side["category_code"], "gas": old_side["gas"], "year": old_side["year"],
+        "strata_removed": old_side["strata_removed"],
+        "allocation_change": np.where(moved[old_side.index], -e0[old_side.index], 0.0),
+        "previous_co2eq_t": e0[old_side.index], "previous_t": old_side["emission_t_0"].fillna(0.0),
+    })
+    new_parts = pd.DataFrame({
+        "category_code": cur_side["category_code"], "gas": cur_side["gas"], "year": cur_side["year"],
+        "activity_change": cur_side["activity_change"], "factor_change": cur_side["factor_change"],
+        "strata_added": cur_side["strata_added"], "allocation_change": cur_side["allocation_change"],
+        "current_co2eq_t": e1[cur_side.index], "current_t": cur_side["emission_t_1"].fillna(0.0),
+    })
+    keys = ["category_code", "gas", "year"]
+    cell = pd.concat([old_parts, new_parts], ignore_index=True).groupby(keys, as_index=False).sum(numeric_only=True)
+    for col in PARTS + ["previous_co2eq_t", "current_co2eq_t", "previous_t", "current_t"]:
+        if col not in cell:
+            cell[col] = 0.0
+    cell["difference_co2eq_t"] = cell["current_co2eq_t"] - cell["previous_co2eq_t"]
+    cell["difference_t"] = cell["current_t"] - cell["previous_t"]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cell["difference_pct"] = np.where(cell["previous_co2eq_t"] != 0,
+                                          cell["difference_co2eq_t"] / cell["previous_co2eq_t"].abs() * 100, np.nan)
+    cell["parts_sum_co2eq_t"] = cell[PARTS].sum(axis=1)
+    cell = cell[["category_code", "gas", "year", "previous_t", "current_t", "difference_t", "previous_co2eq_t",
+                 "current_co2eq_t", "difference_co2eq_t", "difference_pct", *PARTS, "parts_sum_co2eq_t"]]
+    rows = rows.drop(columns="_merge")
+    return cell.sort_values(keys).reset_index(drop=True), rows
+
+
+def trend_effect(by_cell: pd.DataFrame, base: int, latest: int) -> dict:
+    """Change of the total's trend (base -> latest, %) between the two submissions."""
+    tot = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum()
+    def trend(col):
+        if base not in tot.index or latest not in tot.index or not tot.loc[base, col]:
+            return float("nan")
+        return (tot.loc[latest, col] - tot.loc[base, col]) / abs(tot.loc[base, col]) * 100
+    return {"previous_trend_pct": trend("previous_co2eq_t"), "current_trend_pct": trend("current_co2eq_t")}

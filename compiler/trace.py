@@ -1,0 +1,95 @@
+"""A reviewer's trace of one reported number: strata, factors, equation, conversions, sum.
+
+Works on the written outputs (emissions.csv and factors.csv of an output
+folder), so a reviewer can trace a figure without the inputs.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .errors import Finding, InputError
+
+
+def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:
+    folder = Path(folder)
+    files = {name: folder / name for name in ("emissions.csv", "factors.csv")}
+    missing = [str(p) for p in files.values() if not p.is_file()]
+    if missing:
+        raise InputError([Finding("error", "trace", "not an output folder of this tool (file missing)",
+                                  file=", ".join(missing))])
+    emissions = pd.read_csv(files["emissions.csv"], keep_default_na=False,
+                            na_values={c: [""] for c in ("emission_t", "co2eq_t", "factor_value", "parameter_value",
+                                                         "area_basis_ha", "conversion", "emission_basis_t")})
+    factors = pd.read_csv(files["factors.csv"], keep_default_na=False)
+    return emissions, factors
+
+
+def trace_rows(emissions: pd.DataFrame, category: str, gas: str, year: int, region: str | None = None) -> pd.DataFrame:
+    est = emissions[(emissions["category_code"] == category) & (emissions["gas"] == gas)
+                    & (emissions["year"] == int(year))]
+    if region:
+        est = est[est["region"] == region]
+    return est
+
+
+def _fmt(v, digits=6) -> str:
+    if v is None or (isinstance(v, float) and np.isnan(v)):
+        return ""
+    return f"{v:,.{digits}g}" if abs(v) < 1e-3 and v != 0 else f"{v:,.{digits}f}".rstrip("0").rstrip(".")
+
+
+def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, gas: str, year: int,
+               region: str | None = None) -> tuple[str, float]:
+    """The trace as text and the total it ends with [t of gas]."""
+    rows = trace_rows(emissions, category, gas, year, region)
+    where = f"{category} {gas} {year}" + (f", region {region}" if region else "")
+    if rows.empty:
+        raise InputError([Finding("error", "trace", f"nothing reported for {where}",
+                                  expected="a category, gas and year present in emissions.csv")])
+    est = rows[rows["notation_key"] == ""]
+    lines = [f"Trace of {where}"]
+    if est.empty:
+        keys = sorted(set(rows["notation_key"]))
+        reasons = "; ".join(sorted(set(rows["notation_reason"])))
+        lines.append(f"  no estimate: notation key {'/'.join(keys)} ({reasons})")
+        return "\n".join(lines), float("nan")
+    f = factors.set_index("factor_id")
+    for i, (_, r) in enumerate(est.iterrows(), start=1):
+        stratum = ", ".join(x for x in (r["region"], r["climate_zone"], r["land_use"], r["soil_status"],
+                                        r["nutrient_status"], r["drainage_depth"], r["subtype"],
+                                        r["remaining_or_converted"], r["fire_type"]) if x)
+        src = f"{r['input_file']} row {r['input_row']}" if r["input_row"] else f"{r['activity_source']} (gap filled)"
+        lines.append(f"[{i}] {r['pathway']}: {stratum}; {src}")
+        lines.append(f"    area {_fmt(r['area_ha'])} ha" + (f"; area the factor applies to {_fmt(r['area_basis_ha'])} ha"
+                                                             if r["area_basis_ha"] != r["area_ha"] and not r["pathway"].startswith("fire") else ""))
+        fac = f.loc[r["factor_id"]] if r["factor_id"] in f.index else None
+        source = ""
+        if fac is not None:
+            source = f"{fac['citation']}; {fac['table']} {fac['row_label']}".strip("; ")
+        lines.append(f"    factor {r['factor_id']} = {_fmt(r['factor_value'])} {r['factor_unit']} ({r['tier']}"
+                     + (f", {fac['verification']}" if fac is not None else "") + ")")
+        if source:
+            lines.append(f"      source: {source}")
+        if r["parameter_id"]:
+            lines.append(f"    parameter {r['parameter_id']} = {_fmt(r['parameter_value'])} {r['parameter_unit']}")
+        lines.append(f"    equation {r['equation']}")
+        if r["pathway"].startswith("fire"):
+            lines.append(f"    {_fmt(r['area_ha'])} x {_fmt(r['parameter_value'])} x {_fmt(r['factor_value'])} x "
+                         f"{_fmt(r['conversion'], 9)} = {_fmt(r['emission_t'])} t {gas}")
+        else:
+            ratio = r["emission_t"] / r["emission_basis_t"] if r["emission_basis_t"] else 1.0
+            lines.append(f"    {_fmt(r['area_basis_ha'])} ha x {_fmt(r['factor_value'])} {r['factor_unit']} = "
+                         f"{_fmt(r['emission_basis_t'])} {r['emission_basis']}; x {_fmt(ratio, 9)} "
+                         f"({r['emission_basis'][2:]} -> {gas}) = {_fmt(r['emission_t'])} t {gas}")
+    total = float(est["emission_t"].sum())
+    co2eq = est["co2eq_t"].sum(min_count=1)
+    lines.append(f"Sum of {len(est)} rows: {_fmt(total)} t {gas}" + ("" if np.isnan(co2eq) else f" = {_fmt(co2eq)} t CO2-eq"))
+    others = rows[rows["notation_key"] != ""]
+    if not others.empty:
+        lines.append("Also in this cell, without estimate: " + "; ".join(
+            sorted({f"{k} ({reason})" for k, reason in zip(others["notation_key"], others["notation_reason"])})))
+    return "\n".join(lines), total
