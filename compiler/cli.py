@@ -50,6 +50,13 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("--year", required=True, type=int)
     t.add_argument("--region", help="only this region")
 
+    sc = sub.add_parser("scenarios", help="rewetting scenarios to the horizon and their climate effect over time")
+    sc.add_argument("settings", help="settings file (TOML) of the inventory the scenarios start from")
+    sc.add_argument("--scenarios", help="scenario file (TOML); default: [inputs] scenarios of the settings")
+    sc.add_argument("--out", default="scenarios-output", help="output folder (default: scenarios-output)")
+    sc.add_argument("--no-report", action="store_true", help="skip scenario-report.html and .pdf")
+    sc.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
     f = sub.add_parser("factors", help="print the factor register")
     f.add_argument("--factor-set", choices=["ipcc2013ws", "ipcc2006"], help="only this factor set")
     f.add_argument("--quantity", help="only this quantity (e.g. ef_co2_c_onsite)")
@@ -61,6 +68,8 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _report_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--iterations", type=int, help="Monte Carlo iterations (overrides [uncertainty] iterations)")
+    p.add_argument("--seed", type=int, help="Monte Carlo seed (overrides [uncertainty] seed)")
     p.add_argument("--no-report", action="store_true", help="skip report.html and report.pdf")
     p.add_argument("--archive", action="store_true",
                    help="also write report-archive.pdf (PDF/A-3b with emissions.csv, datapackage.json and "
@@ -88,6 +97,8 @@ def main(argv: list[str] | None = None) -> int:
 def _run(args) -> int:
     if args.command == "factors":
         return _factors(args)
+    if args.command == "scenarios":
+        return _scenarios(args)
     if args.command == "compare":
         return _compare(args)
     if args.command == "trace":
@@ -100,13 +111,32 @@ def _run(args) -> int:
         settings = resource_dir("examples") / "demo" / "inventory.toml"
     else:
         settings = Path(args.settings)
-    return _compile(settings, Path(args.out), args.quiet, not args.no_report, args.archive)
+    return _compile(settings, Path(args.out), args.quiet, not args.no_report, args.archive,
+                    {"iterations": args.iterations, "seed": args.seed})
 
 
-def _compile(settings: Path, out: Path, quiet: bool, report: bool, archive: bool) -> int:
+class _Progress:
+    """A one-line progress bar on stderr, only on a terminal."""
+
+    def __init__(self, label: str, enabled: bool):
+        self.label, self.enabled, self.shown = label, enabled and sys.stderr.isatty(), False
+
+    def __call__(self, done: int, total: int) -> None:
+        if not self.enabled or total <= 0:
+            return
+        width = 30
+        filled = int(width * done / total)
+        sys.stderr.write(f"\r{self.label} [{'#' * filled}{'.' * (width - filled)}] {done}/{total}")
+        sys.stderr.flush()
+        self.shown = True
+        if done >= total:
+            sys.stderr.write("\n")
+
+
+def _compile(settings: Path, out: Path, quiet: bool, report: bool, archive: bool, overrides: dict) -> int:
     from .pipeline import compile_inventory
 
-    result = compile_inventory(settings)
+    result = compile_inventory(settings, progress=_Progress("Monte Carlo", not quiet), **overrides)
     if archive and not report:
         raise InputError("--archive needs the report: drop --no-report")
     folder = result.write(out, report=report, archive=archive)
@@ -131,6 +161,38 @@ def _print_summary(result, folder: Path) -> None:
     for f in result.finding_list:
         if f.severity == "warning":
             print(f"  {f.render()}")
+    print(f"  wrote {folder}")
+
+
+def _scenarios(args) -> int:
+    from .pipeline import compile_inventory
+    from .render.scenario_outputs import write_scenario_outputs
+    from .scenarios import load_scenarios, run_scenarios
+
+    result = compile_inventory(Path(args.settings), analyses=False)
+    path = Path(args.scenarios) if args.scenarios else result.settings.scenarios
+    if path is None:
+        raise InputError("no scenario file: give --scenarios FILE or set [inputs] scenarios in the settings")
+    scenarios = load_scenarios(path, result.settings)
+    outcome = run_scenarios(result, scenarios)
+    folder = write_scenario_outputs(result, outcome, Path(args.out), report=not args.no_report)
+    if not args.quiet:
+        _print_scenarios(result, outcome, folder)
+    return EXIT_OK
+
+
+def _print_scenarios(result, outcome, folder: Path) -> None:
+    summary = outcome.summary
+    print(f"{result.settings.name}: {len(summary)} scenarios from {result.settings.last_year} to "
+          f"{int(outcome.climate['year'].max())} (GWP100 {result.settings.gwp}; temperature response against baseline)")
+    for _, r in summary.iterrows():
+        line = f"  {r['scenario']}: cumulative {r['cumulative_co2eq_t_vs_baseline'] / 1e6:+,.2f} Mt CO2-eq vs baseline"
+        for col in [c for c in summary.columns if c.startswith("temperature_vs_baseline_mk_")]:
+            line += f"; {col.rsplit('_', 1)[-1]}: {r[col] * 1000:+.2f} uK"
+        if isinstance(r.get("crossing"), str) and r["crossing"]:
+            line += f"; warming below baseline from {r['crossing']}"
+        print(line)
+    print("  scenarios are not forecasts; rewetting works need hydrological design, permits and licensed professionals")
     print(f"  wrote {folder}")
 
 

@@ -53,6 +53,8 @@ class InventoryResult:
     version: str = __version__
     finding_list: list[Finding] = field(default_factory=list, repr=False)
     recalculation: dict | None = None  # by_cell, by_row, trend (when a previous submission is given)
+    uncertainty: object = None  # compiler.uncertainty.UncertaintyResult
+    key_categories: object = None  # compiler.key_categories.KeyCategoryResult
     review_log: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     @property
@@ -77,11 +79,14 @@ def check_inventory(settings: Settings | str | Path, **setting_overrides) -> lis
     return result.finding_list
 
 
-def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> InventoryResult:
+def compile_inventory(settings: Settings | str | Path, progress=None, analyses: bool = True,
+                      **setting_overrides) -> InventoryResult:
     """Compile the inventory described by ``settings`` (a path to a TOML file or a :class:`Settings`).
 
-    Raises :class:`compiler.errors.InputError` with every blocking finding
-    when the inputs cannot be compiled.
+    ``setting_overrides`` replace settings keys by name (e.g. ``iterations=5000, seed=1``);
+    ``progress(done, total)`` is called during the Monte Carlo; ``analyses=False`` skips the
+    uncertainty and key category analyses. Raises :class:`compiler.errors.InputError` with every
+    blocking finding when the inputs cannot be compiled.
     """
     if not isinstance(settings, Settings):
         settings = load_settings(settings, setting_overrides or None)
@@ -144,10 +149,28 @@ def compile_inventory(settings: Settings | str | Path, **setting_overrides) -> I
     findings["row"] = findings["row"].astype("Int64")
     compile_date = settings.compile_date or _dt.date.today().isoformat()
     activity = activity[~activity["_bad"]].astype({"year": "int64"})
-    return InventoryResult(settings=settings, activity=activity, emissions=emissions,
-                           categories=categories, factors_used=factors_used, findings=findings, library=library,
-                           input_hashes=hashes, gwp=gwp, compile_date=compile_date,
-                           finding_list=list(log.findings), recalculation=recalculation, review_log=review_log)
+    result = InventoryResult(settings=settings, activity=activity, emissions=emissions,
+                             categories=categories, factors_used=factors_used, findings=findings, library=library,
+                             input_hashes=hashes, gwp=gwp, compile_date=compile_date,
+                             finding_list=list(log.findings), recalculation=recalculation, review_log=review_log)
+    if analyses:
+        _analyse(result, progress)
+    return result
+
+
+def _analyse(result: InventoryResult, progress) -> None:
+    """Uncertainty (Approach 1 and/or 2) and key categories; their findings join the result's."""
+    from .key_categories import key_categories, load_national_totals
+    from .uncertainty import run_uncertainty
+
+    result.uncertainty = run_uncertainty(result, progress=progress)
+    national = load_national_totals(result.settings.national_totals) if result.settings.national_totals else None
+    result.key_categories = key_categories(result, result.uncertainty, national_totals=national)
+    extra = list(result.uncertainty.findings) + list(result.key_categories.findings)
+    result.finding_list.extend(f for f in extra if f not in result.finding_list)
+    result.findings = pd.DataFrame([f.as_record() for f in result.finding_list] or None,
+                                   columns=list(result.findings.columns))
+    result.findings["row"] = result.findings["row"].astype("Int64")
 
 
 def _check_overrides_against_defaults(emissions, register, overrides, settings, log) -> None:

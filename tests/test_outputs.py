@@ -38,7 +38,9 @@ def test_emissions_csv_has_the_documented_columns(demo_output):
 def test_workbook_sheets_and_summary_equal_the_tables(demo_output, demo_result):
     wb = openpyxl.load_workbook(demo_output / "inventory.xlsx")
     assert wb.sheetnames == ["summary", "categories", "categories_long", "strata", "trace", "recalculations",
-                             "review_log", "factors", "findings", "settings"]
+                             "review_log", "uncertainty_approach1", "uncertainty_total", "uncertainty_trend",
+                             "monte_carlo", "monte_carlo_trend", "distributions", "convergence", "key_categories",
+                             "factors", "findings", "settings"]
     ws = wb["summary"]
     header_row = next(r for r in range(1, 10) if ws.cell(r, 1).value == "category_code")
     assert ws.freeze_panes == f"A{header_row + 1}"
@@ -80,7 +82,7 @@ def test_manifest(demo_output, demo_result):
     m = json.loads((demo_output / "manifest.json").read_text())
     assert m["tool"] == "histosol" and m["settings"]["method.gwp"] == "AR5"
     assert set(m["inputs_sha256"]) == {"activity", "fires", "overrides", "factor_review", "previous_submission",
-                                       "review_log"}
+                                       "review_log", "scenarios"}
     assert "drained_ipcc2013ws.csv" in m["factor_tables_sha256"]
     assert m["area_ha_by_year"]["2024"] == pytest.approx(demo_result.activity.query("year == 2024")["area_ha"].sum())
     assert m["outputs_sha256"]["emissions.csv"] == sha(demo_output / "emissions.csv")

@@ -10,7 +10,8 @@ from pypdf import PdfReader
 from compiler import compile_inventory
 from compiler.render.report import CAUTIONS, render_html
 
-SECTIONS = ["Summary", "Cautions", "Results by category and gas", "Charts", "Input findings", "Recalculations",
+SECTIONS = ["Summary", "Cautions", "Results by category and gas", "Charts", "Uncertainty", "Key categories",
+            "Input findings", "Recalculations",
             "Previous review findings", "Methods", "Factor register", "Glossary and notation keys", "Reproducibility"]
 
 

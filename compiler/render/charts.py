@@ -123,6 +123,15 @@ def all_charts(result) -> dict[str, str]:
     }
     if result.recalculation is not None:
         out["recalculation"] = recalculation_series(result.recalculation["by_cell"])
+    unc = result.uncertainty
+    if unc is not None and unc.monte_carlo is not None:
+        cells = unc.monte_carlo.summary[unc.monte_carlo.summary["category_code"] != "total"]
+        out["uncertainty"] = uncertainty_intervals(cells, result.settings.last_year)
+    kc = result.key_categories
+    if kc is not None and not kc.table.empty:
+        table = kc.table[kc.table["run"] == kc.table["run"].iloc[0]]
+        out["key_level"] = key_category_shares(table, "level_latest", "cumulative_level_latest", 0.95,
+                                               f"Level assessment {result.settings.last_year} (Approach 1)")
     return out
 
 
@@ -134,4 +143,40 @@ def recalculation_series(by_cell: pd.DataFrame) -> str:
     ax.set_ylabel("kt CO2-eq per year")
     ax.set_title("Net emissions: previous and current submission", loc="left")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+    return _svg(fig)
+
+
+def uncertainty_intervals(summary: pd.DataFrame, year: int) -> str:
+    """Horizontal interval bars: -x % / +y % of each category-gas estimate (Monte Carlo, one year)."""
+    rows = summary[(summary["year"] == year)].copy()
+    rows["label"] = rows["category_code"] + " " + rows["gas"]
+    rows = rows.iloc[::-1]
+    fig, ax = plt.subplots(figsize=(6.2, 0.22 * len(rows) + 0.8))
+    y = range(len(rows))
+    ax.hlines(list(y), -rows["minus_pct"], rows["plus_pct"], color="#2f4858", linewidth=3)
+    ax.plot([0] * len(rows), list(y), "|", color="#9a4b00", markersize=8)
+    ax.set_yticks(list(y))
+    ax.set_yticklabels(rows["label"], fontsize=7)
+    ax.axvline(0, color="#444444", linewidth=0.5)
+    ax.set_xlabel("95 % interval, percent of the estimate")
+    ax.set_title(f"Uncertainty of each category and gas, {year} (Approach 2)", loc="left")
+    return _svg(fig)
+
+
+def key_category_shares(table: pd.DataFrame, column: str, cumulative: str, threshold: float, title: str) -> str:
+    """Cumulative share of the ranked categories, with the threshold line."""
+    rows = table.sort_values(column, ascending=False)
+    rows = rows[rows[column] > 0]
+    labels = (rows["category_code"] + " " + rows["gas"]).tolist()
+    fig, ax = plt.subplots(figsize=(6.2, 2.8))
+    x = range(len(rows))
+    ax.bar(list(x), rows[column] * 100, color="#79c2a8", edgecolor="#1f6f5c", label="share")
+    ax.plot(list(x), rows[cumulative] * 100, color="#2f4858", marker="o", markersize=3, label="cumulative")
+    ax.axhline(threshold * 100, color="#9a4b00", linestyle="--", linewidth=1, label=f"threshold {threshold:.0%}")
+    ax.set_xticks(list(x))
+    ax.set_xticklabels(labels, rotation=60, ha="right", fontsize=6.5)
+    ax.set_ylabel("percent")
+    ax.set_ylim(0, 105)
+    ax.set_title(title, loc="left")
+    ax.legend(loc="center right", frameon=False)
     return _svg(fig)

@@ -24,21 +24,14 @@ MARKER = ".histosol-output"
 
 
 def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = False) -> Path:
-    out_dir = Path(out_dir).resolve()
-    if out_dir.exists() and not out_dir.is_dir():
-        raise InputError([Finding("error", "output", "output path exists and is not a folder", file=str(out_dir))])
-    if out_dir.is_dir() and any(out_dir.iterdir()) and not (out_dir / MARKER).exists():
-        raise InputError([Finding("error", "output", "output folder exists, is not empty and was not written by "
-                                  "this tool; choose another --out or empty it", file=str(out_dir))])
-    out_dir.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.tmp-", dir=out_dir.parent))
-    os.chmod(tmp, 0o755)
-    try:
+    """Every output of a compile, written atomically into ``out_dir``."""
+
+    def fill(tmp: Path) -> None:
         from ..pipeline import EXPORT_COLUMNS
 
         write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv")
-        write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__), tmp / "datapackage.json")
         write_factors_csv(result.factors_used, tmp / "factors.csv")
+        write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__), tmp / "datapackage.json")
         write_workbook(result, tmp / "inventory.xlsx")
         if report or archive:
             from .report import write_report
@@ -51,6 +44,27 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
             from .report import write_archive
 
             write_archive(result, tmp)
+
+    return atomic_folder(Path(out_dir), fill)
+
+
+def atomic_folder(out_dir: Path, fill) -> Path:
+    """Run ``fill(tmp)`` on a temporary folder beside ``out_dir``, then put it in place in one rename.
+
+    An existing folder is replaced only when ``fill`` has finished, and only if this tool wrote it.
+    If ``fill`` fails, the temporary folder is removed and ``out_dir`` is untouched.
+    """
+    out_dir = out_dir.resolve()
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError([Finding("error", "output", "output path exists and is not a folder", file=str(out_dir))])
+    if out_dir.is_dir() and any(out_dir.iterdir()) and not (out_dir / MARKER).exists():
+        raise InputError([Finding("error", "output", "output folder exists, is not empty and was not written by "
+                                  "this tool; choose another --out or empty it", file=str(out_dir))])
+    out_dir.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.tmp-", dir=out_dir.parent))
+    os.chmod(tmp, 0o755)
+    try:
+        fill(tmp)
         (tmp / MARKER).write_text("written by histosol; safe to replace with a new compile\n", encoding="utf-8")
         _swap(tmp, out_dir)
     except BaseException:

@@ -219,6 +219,8 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
                                                                       "allocation_change")},
                             "pct": "" if np.isnan(r["difference_pct"]) else f"{r['difference_pct']:+.1f} %"}
                            for r in view.to_dict("records")]}
+    uncertainty = _uncertainty_context(result)
+    keycat = _key_category_context(result)
     review = []
     if result.review_log is not None and not result.review_log.empty:
         for r in result.review_log.to_dict("records"):
@@ -239,6 +241,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         "gwp": sorted(gwp.items()), "allocation": allocation, "register": factor_sources,
         "references": _references(result),
         "settings_table": s.as_table(), "recalc": recalc, "review": review,
+        "uncertainty": uncertainty, "keycat": keycat,
         "glossary": GLOSSARY,
     }
 
@@ -301,6 +304,66 @@ def _register(result) -> list[dict]:
             "review": row.get("review_result", ""), "reviewed_by": row.get("reviewed_by", ""),
         })
     return out
+
+
+def _uncertainty_context(result) -> dict | None:
+    unc = result.uncertainty
+    if unc is None:
+        return None
+    from ..uncertainty import METHOD_RULES
+
+    s = result.settings
+    out = {"approach": unc.approach, "rules": list(METHOD_RULES.items()), "rows": [], "total": [], "trend": None}
+    a1 = unc.approach1
+    mc = unc.monte_carlo
+    years = (s.first_year, s.last_year)
+    for year in years:
+        entry = {"year": year}
+        if a1 is not None:
+            t = a1.total[a1.total["year"] == year].iloc[0]
+            entry.update(a1_pct=f"\u00b1{t['uncertainty_pct']:.1f} %", a1_shared=f"\u00b1{t['uncertainty_pct_shared_inputs']:.1f} %",
+                         estimate=_fmt(t["co2eq_t"] / 1000))
+        if mc is not None:
+            m = mc.summary[(mc.summary["year"] == year) & (mc.summary["category_code"] == "total")].iloc[0]
+            entry.update(mc=f"\u2212{m['minus_pct']:.1f} % / +{m['plus_pct']:.1f} %", mean=_fmt(m["mean"] / 1000),
+                         p2_5=_fmt(m["p2_5"] / 1000), p97_5=_fmt(m["p97_5"] / 1000))
+        out["total"].append(entry)
+    if a1 is not None:
+        tr = a1.trend.iloc[0]
+        out["trend"] = {"pct": f"{tr['trend_pct']:+.1f} %", "a1": f"\u00b1{tr['trend_uncertainty_pp']:.1f}",
+                        "a1_shared": f"\u00b1{tr['trend_uncertainty_pp_shared_inputs']:.1f}"}
+        if mc is not None:
+            mt = mc.trend[(mc.trend["category_code"] == "total")]
+            if not mt.empty:
+                mt = mt.iloc[0]
+                out["trend"]["mc"] = f"{mt['p2_5_pct']:+.1f} % to {mt['p97_5_pct']:+.1f} %"
+        cells = a1.cells[a1.cells["year"] == s.last_year].copy()
+        cells["var"] = (cells["half_width_t"] * cells["co2eq_t"] / cells["emission_t"].where(cells["emission_t"] != 0)).fillna(0) ** 2
+        top = cells.sort_values("var", ascending=False).head(3)
+        share = top["var"] / cells["var"].sum() * 100 if cells["var"].sum() else top["var"] * 0
+        out["drivers"] = [f"{r['category_code']} {r['gas']} ({p:.0f} % of the variance)" for (_, r), p in zip(top.iterrows(), share)]
+    if mc is not None:
+        rows = mc.summary[(mc.summary["year"] == s.last_year) & (mc.summary["category_code"] != "total")]
+        out["rows"] = [{"code": r["category_code"], "gas": r["gas"], "unit": r["unit"], "estimate": _fmt(r["estimate"], 1),
+                        "interval": f"\u2212{r['minus_pct']:.0f} % / +{r['plus_pct']:.0f} %"} for _, r in rows.iterrows()]
+        out["iterations"] = mc.iterations
+        out["seed"] = mc.seed
+        out["converged"] = bool(mc.convergence["converged"].all()) if "converged" in mc.convergence else True
+    return out
+
+
+def _key_category_context(result) -> dict | None:
+    kc = result.key_categories
+    if kc is None:
+        return None
+    table = kc.table
+    key = table[table["key"]]
+    return {"note": kc.note,
+            "rows": [{"run": r["run"], "code": r["category_code"], "gas": r["gas"],
+                      "level_base": f"{r['level_base'] * 100:.1f}", "level_latest": f"{r['level_latest'] * 100:.1f}",
+                      "trend": f"{r['trend_share'] * 100:.1f}" if pd.notna(r.get("trend_share")) else "",
+                      "assessments": r["assessments"], "tier1": bool(r["tier1_flag"])} for _, r in key.iterrows()],
+            "names": ", ".join(f"{r['category_code']} {r['gas']}" for _, r in key.drop_duplicates(["category_code", "gas"]).iterrows())}
 
 
 def _references(result) -> list[tuple[str, str]]:

@@ -194,6 +194,8 @@ def write_workbook(result, path: Path) -> None:
         _sheet(wb, "review_log", list(rl.columns), _records(rl, list(rl.columns)), widths={"finding": 60,
                                                                                              "response": 50})
 
+    _analysis_sheets(wb, result)
+
     # factors used
     f = result.factors_used
     fcols = ["factor_id", "factor_set", "quantity", "climate_zone", "land_use", "soil_status", "nutrient_status",
@@ -255,6 +257,47 @@ def _rows_xml(frame: pd.DataFrame, first_row: int) -> str:
                 text != "", "")
         row_xml = row_xml + cell
     return ("<row r=\"" + numbers + "\">" + row_xml + "</row>").str.cat()
+
+
+def _table(wb, title, frame: pd.DataFrame, notes=(), widths=None):
+    frame = frame.reset_index(drop=True)
+    cols = [str(c) for c in frame.columns]
+    frame.columns = cols
+    fmt = {c: FORMATS["t"] for c in cols if pd.api.types.is_float_dtype(frame[c])}
+    _sheet(wb, title, cols, _records(frame, cols), fmt, widths, list(notes))
+
+
+def _analysis_sheets(wb, result) -> None:
+    """Uncertainty (Approach 1, Monte Carlo, distributions) and key categories."""
+    unc = result.uncertainty
+    if unc is not None:
+        from ..uncertainty import METHOD_RULES
+
+        if unc.approach1 is not None:
+            a1 = unc.approach1
+            _table(wb, "uncertainty_approach1", a1.cells,
+                   ["Approach 1 (2006 IPCC Guidelines Vol. 1 Eq. 3.1 and 3.2): 95 % half-widths per category, gas "
+                    "and year; activity_pct and factor_pct are the combined relative uncertainties of the cell.",
+                    "Rule for asymmetric intervals: " + METHOD_RULES.get("asymmetric_interval", "")])
+            _table(wb, "uncertainty_total", a1.total,
+                   ["Approach 1 uncertainty of the total (t CO2-eq): uncertainty_pct treats categories as "
+                    "independent (Table 3.2); the _shared_inputs columns add rows that share a factor linearly."])
+            _table(wb, "uncertainty_trend", a1.trend_table,
+                   ["Approach 1 trend uncertainty (Vol. 1 Table 3.2): type A and type B sensitivities; factor "
+                    "uncertainty fully correlated between years, activity uncertainty uncorrelated (sqrt 2 on type B)."])
+        if unc.monte_carlo is not None:
+            mc = unc.monte_carlo
+            _table(wb, "monte_carlo", mc.summary,
+                   [f"Approach 2 Monte Carlo: {mc.iterations} iterations, seed {mc.seed}; one draw per factor per "
+                    "iteration shared by every stratum, region and year that uses it; percentiles as -x % / +y % of "
+                    "the estimate."])
+            _table(wb, "monte_carlo_trend", mc.trend, ["Trend base year -> latest year, percent, with its 95 % interval."])
+            _table(wb, "distributions", mc.distributions, ["Distribution fitted to each factor's 95 % interval."],
+                   {"factor_id": 30, "rule": 50})
+            _table(wb, "convergence", mc.convergence, ["Percentiles from the first and second half of the draws."])
+    kc = result.key_categories
+    if kc is not None:
+        _table(wb, "key_categories", kc.table, [kc.note], {"assessments": 40, "message": 50})
 
 
 def _fix_zip(data: bytes, stamp: _dt.datetime, bulk: dict[int, pd.DataFrame] | None = None) -> bytes:
