@@ -4,11 +4,24 @@ Each reader maps user-facing headers to internal names in one place
 (:data:`HEADER_ALIASES`), checks every cell, and returns a typed table. All
 problems of a file are collected and reported at once, each with file,
 sheet, row and column, what was found and what was expected.
+
+Limits that no real table reaches, so that a typing or export slip is an error
+rather than a number (each named in its message):
+
+- an area (``area_ha``, ``burned_ha``) above 1e9 ha: the world's peatlands cover
+  about 4e8 ha and the Earth's land about 1.5e10 ha; any other number above 1e9 in
+  magnitude (a factor in any accepted unit is far smaller);
+- a year outside 1900 to 2200 where the settings give no range (activity and fire
+  years must lie within the inventory years); a year is a whole number, ``2020.0``
+  is read as 2020 and ``2020.5`` refused;
+- a name or other short text above 200 characters, a citation or note above 2,000;
+  control characters (and, in names, tabs and line breaks) in any text;
+- numbers with thousands separators (``1,234``, ``1 234``; in a semicolon file
+  ``1.234``, which could mean either 1234 or 1.234).
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -17,9 +30,24 @@ import pandas as pd
 
 from .errors import Finding, FindingLog
 from .factors import KEYS, QUANTITIES, override_weight, unit_kind_ok, check_override_conflicts
-from .readers import MAX_LISTED, ROW, read_table
+from .readers import MAX_LISTED, ROW, printable, read_table
 from .settings import Settings
 from .vocabulary import TERMS, describe_accepted, normalise_column, normalise_text
+
+MAX_AREA_HA = 1e9
+MAX_MAGNITUDE = 1e9
+MAX_TEXT_CHARS = 200
+MAX_NOTE_CHARS = 2000
+MISSING_MARKERS = ("nan", "na", "n/a", "null", "none", "-", "--", "#n/a", "missing")
+SHOWN_CHARS = 60  # a longer found value is cut in messages
+YEAR_RANGE = (1900, 2200)
+AREA_COLUMNS = ("area_ha", "burned_ha")
+AREA_BOUND_NOTE = " ha (the world's peatlands cover about 4e8 ha)"
+# C0 and C1 controls, DEL, bidirectional overrides and isolates, line and paragraph separators;
+# names also refuse tab and line breaks.
+_CONTROLS = "\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069"
+MULTILINE_CONTROL = f"[{_CONTROLS}]"
+LINE_CONTROL = f"[{_CONTROLS}\t\n\r\x85]"
 
 HEADER_ALIASES = {
     "area": "area_ha", "area_(ha)": "area_ha", "hectares": "area_ha", "burned_area_ha": "burned_ha",
@@ -31,11 +59,14 @@ HEADER_ALIASES = {
 @dataclass(frozen=True)
 class Column:
     name: str
-    kind: str  # "year", "number", "text", "term", "fraction", "percent"
+    kind: str  # "year", "number" (>= 0), "signed", "text", "term", "fraction", "percent"
     required: bool = False
     term: str = ""  # vocabulary name for kind "term"
     default: str = ""
     blank_is_any: bool = False  # overrides: a blank stratum key means "any value"
+    max_length: int = MAX_TEXT_CHARS  # kind "text"
+    multiline: bool = False  # kind "text": tabs and line breaks allowed (citations, notes)
+    maximum: float = MAX_MAGNITUDE  # number kinds: largest magnitude accepted
 
 
 ACTIVITY_COLUMNS = [
@@ -47,11 +78,12 @@ ACTIVITY_COLUMNS = [
     Column("nutrient_status", "term", True, "nutrient_status"),
     Column("drainage_depth", "term", True, "drainage_depth"),
     Column("subtype", "term", True, "subtype"),
-    Column("area_ha", "number", True),
+    Column("area_ha", "number", True, maximum=MAX_AREA_HA),
     Column("ditch_fraction", "fraction"),
     Column("remaining_or_converted", "term", False, "remaining_or_converted", "remaining"),
     Column("previous_land_use", "term", False, "previous_land_use"),
     Column("area_uncertainty_pct", "percent"),
+    Column("evidence", "term", False, "evidence"),
 ]
 FIRE_COLUMNS = [
     Column("year", "year", True),
@@ -60,14 +92,14 @@ FIRE_COLUMNS = [
     Column("land_use", "term", True, "land_use"),
     Column("soil_status", "term", True, "soil_status"),
     Column("fire_type", "term", True, "fire_type"),
-    Column("burned_ha", "number", True),
+    Column("burned_ha", "number", True, maximum=MAX_AREA_HA),
     Column("remaining_or_converted", "term", False, "remaining_or_converted", "remaining"),
 ]
 OVERRIDE_COLUMNS = [
     Column("quantity", "text", True),
-    Column("value", "number", True),
+    Column("value", "signed", True),  # removals are negative (e.g. rewetted CO2); bounds by quantity below
     Column("unit", "text", True),
-    Column("source", "text", True),
+    Column("source", "text", True, max_length=MAX_NOTE_CHARS, multiline=True),
     Column("override_id", "text"),
     Column("climate_zone", "term", False, "climate_zone", blank_is_any=True),
     Column("land_use", "term", False, "land_use", blank_is_any=True),
@@ -82,25 +114,28 @@ OVERRIDE_COLUMNS = [
     Column("region", "text"),
     Column("first_year", "year"),
     Column("last_year", "year"),
-    Column("note", "text"),
+    Column("note", "text", max_length=MAX_NOTE_CHARS, multiline=True),
 ]
 REVIEW_COLUMNS = [
     Column("factor_id", "text", True),
     Column("checked_by", "text", True),
     Column("checked_on", "text", True),
-    Column("against", "text", True),
+    Column("against", "text", True, max_length=MAX_NOTE_CHARS, multiline=True),
     Column("result", "text", True),
-    Column("note", "text"),
+    Column("note", "text", max_length=MAX_NOTE_CHARS, multiline=True),
 ]
 REVIEW_LOG_COLUMNS = [
     Column("id", "text", True),
     Column("year_raised", "year", True),
     Column("category_code", "text", True),
     Column("principle", "text", True),
-    Column("finding", "text", True),
-    Column("response", "text"),
+    Column("finding", "text", True, max_length=MAX_NOTE_CHARS, multiline=True),
+    Column("response", "text", max_length=MAX_NOTE_CHARS, multiline=True),
     Column("status", "text", True),
 ]
+# Override quantities that cannot be negative (emission factors can: removals, CH4 uptake).
+NON_NEGATIVE = ("fuel_consumption", "ef_fire_co2_c", "ef_fire_ch4", "ef_fire_co", "doc_flux_natural",
+                "delta_doc_drainage", "frac_ditch", "frac_doc_co2")
 PRINCIPLES = ("transparency", "accuracy", "consistency", "comparability", "completeness")
 REVIEW_STATUS = ("resolved", "in_progress", "open")
 STRATUM_KEYS = ["year", "region", *KEYS[:-1], "remaining_or_converted", "previous_land_use"]
@@ -123,7 +158,7 @@ class _Checker:
             return
         shown = rows.head(MAX_LISTED)
         for idx, r in shown.iterrows():
-            value = "" if found is None else str(found.loc[idx])
+            value = "" if found is None else shorten(str(found.loc[idx]))
             self.log.add(severity, check, message, file=self.file, sheet=self.sheet, row=int(r[ROW]),
                          column=column, found=value, expected=expected)
         if len(rows) > MAX_LISTED:
@@ -131,8 +166,13 @@ class _Checker:
                          file=self.file, sheet=self.sheet, column=column)
 
     def one(self, severity: str, check: str, message: str, column: str = "", found: str = "", expected: str = ""):
-        self.log.add(severity, check, message, file=self.file, sheet=self.sheet, column=column, found=found,
-                     expected=expected)
+        self.log.add(severity, check, message, file=self.file, sheet=self.sheet, column=printable(column),
+                     found=found, expected=expected)
+
+
+def shorten(text: str, limit: int = SHOWN_CHARS) -> str:
+    """A found value as shown in a message: long values cut, with their length."""
+    return text if len(text) <= limit else f"{text[:limit]}... ({len(text):,} characters)"
 
 
 def _parse_numbers(text: pd.Series, decimal_comma: bool) -> pd.Series:
@@ -142,14 +182,31 @@ def _parse_numbers(text: pd.Series, decimal_comma: bool) -> pd.Series:
     return pd.to_numeric(cleaned.where(cleaned != "", np.nan), errors="coerce")
 
 
+def _short_number(value: float) -> str:
+    """1e9 rather than 1e+09 or 1000000000."""
+    mantissa, exponent = f"{value:.0e}".split("e")
+    return f"{mantissa}e{int(exponent)}"
+
+
+def _number_expected(decimal_comma: bool) -> str:
+    if decimal_comma:
+        return ("a number with ',' or '.' as decimal mark and no thousands separator (remove the separators: "
+                "1234,5 not 1.234,5 or 1 234,5)")
+    return ("a number with '.' as decimal mark and no thousands separator (remove the separators: "
+            "1234.5 not 1,234.5 or 1 234.5)")
+
+
 def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, settings: Settings | None,
                      decimal_comma: bool = False) -> pd.DataFrame:
     """Check every cell against ``spec``; return a typed frame (rows with errors are kept but flagged)."""
-    header_map = {c: _header(c) for c in raw.columns if c != ROW}
-    internal = list(header_map.values())
-    duplicated = sorted({h for h in internal if internal.count(h) > 1})
+    given = [c for c in raw.columns if c != ROW]
+    header_map = {c: _header(c) for c in given}
+    internal = [header_map[c] for c in given]  # one entry per column, even when two headers are spelt alike
+    duplicated = sorted({h for h in internal if h and internal.count(h) > 1})
     for h in duplicated:
-        check.one("error", "columns", "column appears more than once", column=h, found=h)
+        spelt = [str(c) for c in given if header_map[c] == h]
+        check.one("error", "columns", "column appears more than once", column=h, found=", ".join(spelt),
+                  expected="each column once")
     if duplicated:
         return pd.DataFrame()
     raw = raw.rename(columns=header_map)
@@ -157,12 +214,13 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
     missing = [c.name for c in spec if c.required and c.name not in raw.columns]
     if missing:
         check.one("error", "columns", "required column missing", column=", ".join(missing),
-                  found=", ".join(internal), expected="columns " + ", ".join(c.name for c in spec if c.required))
+                  found=", ".join(shorten(h, 40) for h in internal),
+                  expected="columns " + ", ".join(c.name for c in spec if c.required))
         return pd.DataFrame()
     extra = [c for c in raw.columns if c not in names and c != ROW]
     if extra:
         check.one("warning", "columns", "column not used by the compiler (kept in your file, ignored here)",
-                  column=", ".join(map(str, extra)))
+                  column=", ".join(shorten(printable(c), 40) for c in extra))
     out = pd.DataFrame({ROW: raw[ROW].to_numpy()}, index=raw.index)
     bad_rows = np.zeros(len(raw), dtype=bool)
     for col in spec:
@@ -190,51 +248,81 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
                 bad_rows |= (values == "").to_numpy()
             out[col.name] = values
         elif col.kind == "text":
+            # One spelling per name: a region typed with a composed or a decomposed accent is one region.
+            stripped = stripped.str.normalize("NFC")
             if col.required:
                 check.rows("error", "missing", f"{col.name} is blank", raw[blank], col.name, text, "a value")
                 bad_rows |= blank.to_numpy()
-            control = stripped.str.contains(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]", regex=True)
-            check.rows("error", "text", f"{col.name} holds control characters", raw[control], col.name,
-                       text.str.encode("unicode_escape").str.decode("ascii"), "printable text")
+            long = stripped.str.len() > col.max_length
+            check.rows("error", "text", f"{col.name} is longer than {col.max_length} characters", raw[long],
+                       col.name, text, f"at most {col.max_length} characters")
+            bad_rows |= long.to_numpy()
+            control = stripped.str.contains(MULTILINE_CONTROL if col.multiline else LINE_CONTROL, regex=True)
+            check.rows("error", "text", f"{col.name} holds control characters", raw[control], col.name, text,
+                       "printable text" + ("" if col.multiline else " on one line"))
             bad_rows |= control.to_numpy()
             out[col.name] = stripped.where(~blank, col.default)
         else:
             numbers = _parse_numbers(stripped, decimal_comma)
+            if decimal_comma:
+                # "1.234" in a decimal-comma file is 1234 with a thousands dot, or 1.234: refuse to guess.
+                grouped = stripped.str.fullmatch(r"[+-]?\d{1,3}(\.\d{3})+")
+                numbers = numbers.where(~grouped)
             not_number = ~blank & numbers.isna()
-            check.rows("error", "number", f"{col.name} is not a number", raw[not_number], col.name, text,
-                       "a number with '.' as decimal mark and no thousands separator")
+            marker = not_number & stripped.str.lower().isin(MISSING_MARKERS)
+            if col.kind == "year":
+                expected = "a whole year such as 2020"
+            else:
+                expected = _number_expected(decimal_comma)
+            check.rows("error", "number", f"{col.name} is not a number", raw[not_number & ~marker], col.name, text,
+                       expected)
+            check.rows("error", "number", f"{col.name} is not a number", raw[marker], col.name, text,
+                       "a number; a missing-value marker such as NaN or NA is not accepted (leave an optional cell "
+                       "blank; a required one needs its value)")
             bad_rows |= not_number.to_numpy()
             if col.required:
                 check.rows("error", "missing", f"{col.name} is blank", raw[blank], col.name, text, "a number")
                 bad_rows |= blank.to_numpy()
-            finite = numbers.apply(lambda v: v is not None and not math.isnan(v) and math.isfinite(v)) | numbers.isna()
-            infinite = ~finite
+            infinite = pd.Series(~np.isfinite(numbers.to_numpy(dtype=float)), index=numbers.index) & numbers.notna()
             check.rows("error", "number", f"{col.name} is not finite", raw[infinite], col.name, text, "a finite number")
             bad_rows |= infinite.to_numpy()
+            numbers = numbers.where(~infinite)
             if col.kind == "year":
                 fractional = numbers.notna() & (numbers != np.floor(numbers.fillna(0)))
                 check.rows("error", "year", f"{col.name} is not a whole year", raw[fractional], col.name, text,
                            "a whole year such as 2020")
                 bad_rows |= fractional.to_numpy()
+                first, last = YEAR_RANGE
                 if settings is not None and col.required:
-                    out_of_range = numbers.notna() & ((numbers < settings.first_year) | (numbers > settings.last_year))
-                    check.rows("error", "year", "year outside the inventory years", raw[out_of_range], col.name, text,
-                               f"{settings.first_year} to {settings.last_year} (settings [inventory])")
-                    bad_rows |= out_of_range.to_numpy()
-            elif col.kind == "number":
-                negative = numbers < 0
-                check.rows("error", "number", f"{col.name} is negative", raw[negative], col.name, text, ">= 0")
-                bad_rows |= negative.to_numpy()
-            elif col.kind == "fraction":
-                outside = (numbers < 0) | (numbers > 1)
-                check.rows("error", "fraction", f"{col.name} is outside [0, 1]", raw[outside], col.name, text,
-                           "a fraction from 0 to 1")
-                bad_rows |= outside.to_numpy()
-            elif col.kind == "percent":
-                outside = (numbers < 0) | (numbers > 1000)
-                check.rows("error", "number", f"{col.name} is outside 0 to 1000 %", raw[outside], col.name, text,
-                           "a 95 % half-width in percent")
-                bad_rows |= outside.to_numpy()
+                    first, last, where = settings.first_year, settings.last_year, "settings [inventory]"
+                else:
+                    where = "a plausible year"
+                out_of_range = numbers.notna() & ~fractional & ((numbers < first) | (numbers > last))
+                label = "year outside the inventory years" if where.startswith("settings") else \
+                    f"{col.name} outside {YEAR_RANGE[0]} to {YEAR_RANGE[1]}"
+                check.rows("error", "year", label, raw[out_of_range], col.name, text, f"{first} to {last} ({where})")
+                bad_rows |= out_of_range.to_numpy()
+                numbers = numbers.where(~(fractional | out_of_range))  # typed as whole years downstream
+            else:
+                if col.kind == "number":
+                    negative = numbers < 0
+                    check.rows("error", "number", f"{col.name} is negative", raw[negative], col.name, text, ">= 0")
+                    bad_rows |= negative.to_numpy()
+                elif col.kind == "fraction":
+                    outside = (numbers < 0) | (numbers > 1)
+                    check.rows("error", "fraction", f"{col.name} is outside [0, 1]", raw[outside], col.name, text,
+                               "a fraction from 0 to 1")
+                    bad_rows |= outside.to_numpy()
+                elif col.kind == "percent":
+                    outside = (numbers < 0) | (numbers > 1000)
+                    check.rows("error", "number", f"{col.name} is outside 0 to 1000 %", raw[outside], col.name, text,
+                               "a 95 % half-width in percent")
+                    bad_rows |= outside.to_numpy()
+                huge = numbers.abs() > col.maximum
+                check.rows("error", "number", f"{col.name} is above {_short_number(col.maximum)}"
+                           + (" ha" if col.name in AREA_COLUMNS else " in magnitude"), raw[huge], col.name, text,
+                           f"at most {col.maximum:,.0f}" + (AREA_BOUND_NOTE if col.name in AREA_COLUMNS else ""))
+                bad_rows |= huge.to_numpy()
             out[col.name] = numbers
     out["_bad"] = bad_rows
     return out
@@ -270,13 +358,44 @@ def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
     frame.loc[~(frame["remaining_or_converted"] == "converted"), "previous_land_use"] = ""
     frame["year"] = frame["year"].astype("Int64")
     keys = frame[~frame["_bad"]]
-    dup = keys[keys.duplicated(STRATUM_KEYS, keep=False)]
-    check.rows("error", "duplicate", "the same year, region and stratum appear in more than one row", dup,
-               "year", dup["region"].astype(str), "one row per year, region and stratum (add the areas together)")
+    _check_duplicates(keys, check)
+    _check_region_spellings(keys, check)
     rewetted_ditch = keys[(keys["soil_status"] == "rewetted") & keys["ditch_fraction"].notna()]
     check.rows("warning", "ditch", "ditch_fraction given on rewetted land is not used (Chapter 3 has no ditch term)",
                rewetted_ditch, "ditch_fraction", rewetted_ditch["ditch_fraction"])
     return frame
+
+
+def _check_duplicates(keys: pd.DataFrame, check: _Checker) -> None:
+    """One row per year, region and stratum; says whether the repeated rows are copies or conflict."""
+    dup = keys[keys.duplicated(STRATUM_KEYS, keep=False)]
+    if dup.empty:
+        return
+    group = dup.groupby(STRATUM_KEYS, dropna=False, sort=False)
+    gid = group.ngroup()
+    copies = group["area_ha"].transform("nunique") <= 1
+    found = pd.Series("", index=dup.index, dtype=object)
+    for idx in dup.head(MAX_LISTED * 2).index:  # the rows listed: at most MAX_LISTED of each kind
+        others = dup.loc[(gid == gid[idx]) & (dup.index != idx), ROW].astype(str)
+        found[idx] = f"area_ha {dup.at[idx, 'area_ha']:g}, also in row {', '.join(others.head(5))}"
+    message = "the same year, region and stratum appear in more than one row"
+    check.rows("error", "duplicate", message, dup[copies], "year", found,
+               "one row per year, region and stratum: these rows are copies, delete the repeats (or add the areas "
+               "together if they are separate parts of the stratum)")
+    check.rows("error", "duplicate", message, dup[~copies], "year", found,
+               "one row per year, region and stratum: the areas conflict; add them together if they are parts of "
+               "the stratum, otherwise correct the row")
+
+
+def _check_region_spellings(keys: pd.DataFrame, check: _Checker) -> None:
+    """Regions that differ only in case or spacing are probably one region typed twice: a warning."""
+    regions = pd.Series(pd.unique(keys["region"]))
+    folded = regions.str.casefold().str.split().str.join(" ")
+    clashes = regions[folded.duplicated(keep=False)]
+    for _, names in clashes.groupby(folded[clashes.index]).head(MAX_LISTED).groupby(folded[clashes.index]):
+        rows = keys[keys["region"].isin(list(names))].drop_duplicates("region")
+        check.rows("warning", "region", "regions differ only in case or spacing; they are compiled as separate "
+                   "regions", rows, "region", rows["region"], "one spelling per region")
 
 
 def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
@@ -285,6 +404,12 @@ def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
     frame, sheet = _load(settings.fires, "", FIRE_COLUMNS, log, settings)
     if not frame.empty:
         frame["year"] = frame["year"].astype("Int64")
+        keys = ["year", "region", "climate_zone", "land_use", "soil_status", "fire_type", "remaining_or_converted"]
+        good = frame[~frame["_bad"]]
+        dup = good[good.duplicated(keys, keep=False)]
+        _Checker(log, str(settings.fires), sheet).rows(
+            "error", "duplicate", "the same fire (year, region, stratum, fire type) appears in more than one row", dup,
+            "year", dup["region"].astype(str), "one row per fire stratum and year (add the burnt areas together)")
     return frame
 
 
@@ -307,6 +432,15 @@ def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
         log.add("error", "override", f"unit cannot be converted for {row['quantity']}: {reasons[idx]}",
                 file=file, sheet=sheet, row=int(row[ROW]), column="unit", found=row["unit"],
                 expected=QUANTITIES[row["quantity"]][1] + " or a convertible unit")
+    bounds = known["quantity"].map(lambda q: QUANTITIES[q][2] or ((0.0, np.inf) if q in NON_NEGATIVE else None))
+    bounded = known[bounds.notna()]
+    low, high = bounds[bounded.index].str[0], bounds[bounded.index].str[1]
+    outside = bounded[(bounded["value"] < low) | (bounded["value"] > high)]
+    for idx, row in outside.head(MAX_LISTED).iterrows():
+        lo, hi = bounds[idx]
+        log.add("error", "override", f"value out of range for {row['quantity']}", file=file, sheet=sheet,
+                row=int(row[ROW]), column="value", found=f"{row['value']:g}",
+                expected=f">= {lo:g}" if hi == np.inf else f"{lo:g} to {hi:g}")
     fraction_q = known[known["quantity"].map(lambda q: QUANTITIES[q][1] == "fraction")]
     not_plain = fraction_q[fraction_q["unit"].str.strip().str.lower() != "fraction"]
     check.rows("error", "override", "give fractions as fractions (0 to 1)", not_plain, "unit", not_plain["unit"],

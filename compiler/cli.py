@@ -80,6 +80,11 @@ def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
         return _run(args)
+    except BrokenPipeError:  # output piped into a pager or head that closed early: the work is done
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
     except CompilerError as exc:
         print(str(exc), file=sys.stderr)
         return exc.exit_code
@@ -158,9 +163,13 @@ def _print_summary(result, folder: Path) -> None:
           f"{len(result.factors_used)} factors used")
     print(f"  findings: {counts.get('warning', 0)} warnings, {counts.get('info', 0)} notes "
           "(see the findings sheet)")
+    by_check: dict[str, list] = {}
     for f in result.finding_list:
         if f.severity == "warning":
-            print(f"  {f.render()}")
+            by_check.setdefault(f.check, []).append(f)
+    for check, items in by_check.items():
+        more = f" (and {len(items) - 1} more)" if len(items) > 1 else ""
+        print(f"  warning{more}: {items[0].render(short=True).split(': ', 1)[1]}")
     print(f"  wrote {folder}")
 
 

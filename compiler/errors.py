@@ -94,6 +94,18 @@ class InputError(CompilerError, ValueError):
         return "\n".join([head] + [f.render() for f in errors])
 
 
+class QaqcError(CompilerError):
+    """QA/QC checks of the results found errors: nothing is written. The CLI exits with 1."""
+
+    exit_code = 1
+
+    def __init__(self, findings):
+        self.findings = list(findings)
+        errors = [f for f in self.findings if f.severity == "error"]
+        super().__init__("\n".join([f"{len(errors)} QA/QC error{'s' if len(errors) != 1 else ''} in the results; "
+                                     "nothing was written."] + [f.render() for f in errors]))
+
+
 class SettingsError(InputError):
     """A problem in the settings file."""
 

@@ -19,7 +19,7 @@ from . import __version__
 from .activity import load_activity, load_fires, load_overrides, load_review, load_review_log
 from .categories import allocate, category_table
 from .engine import compute
-from .errors import Finding, FindingLog, InputError
+from .errors import Finding, FindingLog, InputError, QaqcError
 from .factors import FactorLibrary, file_sha256, load_library
 from .metrics import co2_equivalent, gwp_table
 from .settings import Settings, load_settings
@@ -71,10 +71,10 @@ class InventoryResult:
 
 
 def check_inventory(settings: Settings | str | Path, **setting_overrides) -> list[Finding]:
-    """Validate every input and run the factor resolution; return all findings. Writes nothing."""
+    """Validate every input, compile, run the QA/QC checks; return all findings. Writes nothing."""
     try:
         result = compile_inventory(settings, **setting_overrides)
-    except InputError as exc:
+    except (InputError, QaqcError) as exc:
         return exc.findings
     return result.finding_list
 
@@ -136,10 +136,6 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     used_ids = set(emissions["factor_id"]) | set(emissions["parameter_id"])
     factors_used = engine.register[engine.register["factor_id"].isin(used_ids)].copy()
     factors_used = _attach_review(factors_used, review)
-    unverified = factors_used[factors_used["verification"] == "from_memory"]
-    if not unverified.empty:
-        log.add("info", "verification", f"{len(unverified)} factors in use are marked from_memory: check them "
-                "against the published tables before official use (" + ", ".join(unverified["factor_id"]) + ")")
 
     hashes = {name: file_sha256(path) for name, path in settings.input_paths().items()}
     hashes.update({f"factor_tables/{k}": v for k, v in library.hashes().items()})
@@ -163,8 +159,18 @@ def _analyse(result: InventoryResult, progress) -> None:
     from .key_categories import key_categories, load_national_totals
     from .uncertainty import run_uncertainty
 
-    result.uncertainty = run_uncertainty(result, progress=progress)
+    from .qaqc import QaqcThresholds, run_checks
+
     national = load_national_totals(result.settings.national_totals) if result.settings.national_totals else None
+    evidence = result.activity["evidence"] if "evidence" in result.activity else None
+    if evidence is not None and not (evidence != "").any():
+        evidence = None
+    checks = run_checks(result, QaqcThresholds.from_mapping(result.settings.qaqc), national_totals=national,
+                        evidence=evidence)
+    result.finding_list.extend(f for f in checks if f not in result.finding_list)
+    if any(f.severity == "error" for f in checks):
+        raise QaqcError(checks)
+    result.uncertainty = run_uncertainty(result, progress=progress)
     result.key_categories = key_categories(result, result.uncertainty, national_totals=national)
     extra = list(result.uncertainty.findings) + list(result.key_categories.findings)
     result.finding_list.extend(f for f in extra if f not in result.finding_list)
@@ -234,5 +240,5 @@ def _check_area_balance(activity, emissions, log) -> None:
     got = onsite.groupby("year")["area_ha"].sum().reindex(given.index, fill_value=0.0)
     off = (given - got).abs() > 1e-6 * given.abs().clip(lower=1.0)
     for year in given.index[off]:
-        log.add("error", "area_balance", f"area of {year} not carried through to the results",
+        log.add("error", "area_carried_through", f"area of {year} not carried through to the results",
                 found=f"{got[year]:.3f} ha", expected=f"{given[year]:.3f} ha")

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import datetime as _dt
 import difflib
+import math
+import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -27,6 +29,9 @@ IPCC2006_TEMPERATE = ("cold_temperate", "warm_temperate")
 
 # section -> key -> (python types, default, allowed values or None, description)
 _REQUIRED = object()
+MAX_SETTINGS_BYTES = 1024 * 1024  # a settings file is a few kilobytes; a larger one is not read
+MAX_SETTING_CHARS = 500  # any text value, such as the inventory name or a path
+_CONTROL = re.compile(r"[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
 SCHEMA: dict[str, dict[str, tuple]] = {
     "inventory": {
         "name": ((str,), _REQUIRED, None, "inventory name printed on every output"),
@@ -69,6 +74,16 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "trend_years": ((int,), 5, None, "known years used for trend extrapolation"),
         "fill_by_region": ((dict,), {}, None, "per-region fill mode, e.g. {\"Quillfen\" = \"both\"}"),
     },
+    "qaqc": {
+        "year_on_year_area_pct": ((int, float), 25.0, None, "flag a stratum's area change above this [%]"),
+        "year_on_year_emission_pct": ((int, float), 25.0, None, "flag a category's CO2-eq change above this [%]"),
+        "year_on_year_area_floor_ha": ((int, float), 100.0, None, "smaller flagged area changes are info [ha]"),
+        "year_on_year_emission_floor_t": ((int, float), 1000.0, None, "smaller flagged changes are info [t CO2-eq]"),
+        "area_balance_tolerance_pct": ((int, float), 0.5, None, "area change accepted without a declared conversion [%]"),
+        "insignificance_pct": ((int, float), 0.05, None, "NE insignificant below this share of the national total [%]"),
+        "insignificance_kt": ((int, float), 500.0, None, "... and below this size [kt CO2-eq]"),
+        "insignificance_aggregate_pct": ((int, float), 0.1, None, "all insignificant NE together below this share [%]"),
+    },
     "limits": {
         "max_input_mb": ((int, float), 512, None, "largest input file read, in MiB"),
     },
@@ -103,6 +118,7 @@ class Settings:
     correlate_activity_across_years: bool = True
     default_area_pct: float = 10.0
     fill: str = "none"
+    qaqc: dict = field(default_factory=dict)
     trend_years: int = 5
     fill_by_region: dict = field(default_factory=dict)
     max_input_mb: float = 512
@@ -126,7 +142,7 @@ class Settings:
         rows = []
         for section, keys in SCHEMA.items():
             for key, (_, _, _, description) in keys.items():
-                value = getattr(self, ATTRIBUTE.get(key, key), "")
+                value = getattr(self, ATTRIBUTE.get(key, key), self.qaqc.get(key, ""))
                 if isinstance(value, Path):
                     value = value.name
                 rows.append((f"{section}.{key}", "" if value is None else str(value), description))
@@ -143,14 +159,26 @@ def load_settings(path: str | Path, overrides: dict[str, Any] | None = None) -> 
     fname = str(path)
     if not path.is_file():
         raise SettingsError([_err("settings file not found", fname)])
+    size = path.stat().st_size
+    if size > MAX_SETTINGS_BYTES:
+        raise SettingsError([_err(f"the settings file is {size:,} bytes, above the limit of {MAX_SETTINGS_BYTES:,}; "
+                                  "it was not read", fname, expected="a settings file (TOML) of a few kilobytes")])
+    data = path.read_bytes()
+    head = data[:4096]
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")) or (head and head.count(0) * 4 >= len(head)):
+        raise SettingsError([_err("not valid TOML: the file is UTF-16 text, not UTF-8", fname,
+                                  expected="the settings saved as UTF-8 text")])
     try:
-        with path.open("rb") as handle:
-            data = tomllib.load(handle)
+        text = data.decode("utf-8-sig")  # a BOM, as some editors write, is dropped
+    except UnicodeDecodeError as exc:
+        line = data[:exc.start].count(b"\n") + 1
+        raise SettingsError([_err(f"not valid TOML: the file is not UTF-8 text (byte {exc.start}, on line {line})",
+                                  fname, expected="the settings saved as UTF-8 text")]) from None
+    try:
+        parsed = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SettingsError([_err(f"not valid TOML: {exc}", fname)]) from None
-    except UnicodeDecodeError:
-        raise SettingsError([_err("not valid TOML: the file is not UTF-8 text", fname)]) from None
-    return settings_from_dict(data, path, overrides)
+    return settings_from_dict(parsed, path, overrides)
 
 
 def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None = None) -> Settings:
@@ -181,6 +209,19 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
             if (isinstance(value, bool) and bool not in types) or not isinstance(value, types):
                 problems.append(_err("wrong type", fname, column=f"{section}.{key}", found=repr(value),
                                      expected=" or ".join(t.__name__ for t in types)))
+                continue
+            if isinstance(value, float) and not math.isfinite(value):
+                problems.append(_err("not a finite number", fname, column=f"{section}.{key}", found=repr(value),
+                                     expected="a finite number"))
+                continue
+            if isinstance(value, str) and len(value) > MAX_SETTING_CHARS:
+                problems.append(_err(f"longer than {MAX_SETTING_CHARS} characters", fname, column=f"{section}.{key}",
+                                     found=f"{value[:60]}... ({len(value):,} characters)",
+                                     expected=f"at most {MAX_SETTING_CHARS} characters"))
+                continue
+            if isinstance(value, str) and _CONTROL.search(value):
+                problems.append(_err("holds control characters", fname, column=f"{section}.{key}", found=value,
+                                     expected="printable text on one line"))
                 continue
             if allowed is not None and value not in allowed:
                 near = difflib.get_close_matches(str(value), [a for a in allowed if a], n=1)
@@ -214,10 +255,15 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
     if not 2 <= values["trend_years"] <= 50:
         problems.append(_err("out of range", fname, column="timeseries.trend_years", found=str(values["trend_years"]),
                              expected="2 to 50"))
+    for key in SCHEMA["qaqc"]:
+        if values[key] < 0:
+            problems.append(_err("must be zero or positive", fname, column=f"qaqc.{key}", found=str(values[key])))
     if values["max_input_mb"] <= 0:
         problems.append(_err("must be positive", fname, column="limits.max_input_mb", found=str(values["max_input_mb"])))
     compile_date = values["compile_date"]
-    if isinstance(compile_date, _dt.date):
+    if isinstance(compile_date, _dt.datetime):  # a TOML date-time: the date is what outputs print
+        compile_date = compile_date.date().isoformat()
+    elif isinstance(compile_date, _dt.date):
         compile_date = compile_date.isoformat()
     elif compile_date:
         try:
@@ -232,12 +278,20 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         if not text:
             paths[key] = None
             continue
-        candidate = (base / text).resolve()
-        if not candidate.is_relative_to(base):
+        try:
+            candidate = (base / text).resolve()
+            inside = candidate.is_relative_to(base)
+            is_file = inside and candidate.is_file()
+        except (OSError, ValueError) as exc:  # a name too long for the file system, an embedded NUL
+            problems.append(_err(f"not a usable path ({exc.strerror if isinstance(exc, OSError) else exc})", fname,
+                                 column=f"inputs.{key}", found=text[:60] + ("..." if len(text) > 60 else ""),
+                                 expected="a path inside the folder of the settings file"))
+            continue
+        if not inside:
             problems.append(_err("path leaves the settings folder", fname, column=f"inputs.{key}", found=text,
                                  expected="a path inside the folder of the settings file"))
             continue
-        if not candidate.is_file():
+        if not is_file:
             problems.append(_err("input file not found", fname, column=f"inputs.{key}", found=text,
                                  expected=f"a file at {candidate}"))
             continue
@@ -256,6 +310,7 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         uncertainty_approach=values["approach"], iterations=values["iterations"], seed=values["seed"],
         correlate_activity_across_years=values["correlate_activity_across_years"],
         default_area_pct=float(values["default_area_pct"]),
-        fill=values["fill"], trend_years=values["trend_years"], fill_by_region=dict(values["fill_by_region"]),
+        fill=values["fill"], trend_years=values["trend_years"],
+        qaqc={k: float(values[k]) for k in SCHEMA["qaqc"]}, fill_by_region=dict(values["fill_by_region"]),
         max_input_mb=values["max_input_mb"], source=path.resolve(), raw=data,
     )

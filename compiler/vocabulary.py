@@ -24,6 +24,7 @@ TERMS: dict[str, tuple[str, ...]] = {
     "remaining_or_converted": ("remaining", "converted"),
     "previous_land_use": ("forest_land", "cropland", "grassland", "wetlands", "settlements", "other_land", BLANK),
     "fire_type": ("wildfire", "prescribed"),
+    "evidence": ("measured", "mapped", "statistics", "assumed", BLANK),
 }
 
 # Equivalent spellings, after normalisation (lower case, "_" for "-" and space).

@@ -241,7 +241,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         "gwp": sorted(gwp.items()), "allocation": allocation, "register": factor_sources,
         "references": _references(result),
         "settings_table": s.as_table(), "recalc": recalc, "review": review,
-        "uncertainty": uncertainty, "keycat": keycat,
+        "uncertainty": uncertainty, "keycat": keycat, "qaqc_checks": _qaqc_checks(),
         "glossary": GLOSSARY,
     }
 
@@ -364,6 +364,13 @@ def _key_category_context(result) -> dict | None:
                       "trend": f"{r['trend_share'] * 100:.1f}" if pd.notna(r.get("trend_share")) else "",
                       "assessments": r["assessments"], "tier1": bool(r["tier1_flag"])} for _, r in key.iterrows()],
             "names": ", ".join(f"{r['category_code']} {r['gas']}" for _, r in key.drop_duplicates(["category_code", "gas"]).iterrows())}
+
+
+def _qaqc_checks() -> list[dict]:
+    from ..qaqc import CHECKS
+
+    return [{"check": c.check, "severity": c.severity, "description": c.description, "source": c.source}
+            for c in CHECKS]
 
 
 def _references(result) -> list[tuple[str, str]]:
