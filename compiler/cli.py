@@ -26,6 +26,8 @@ def _parser() -> argparse.ArgumentParser:
     d = sub.add_parser("demo", help="compile the bundled invented demo region and write every output")
     d.add_argument("--out", default="demo-output", help="output folder (default: demo-output)")
     d.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    d.add_argument("--scenarios", action="store_true",
+                   help="also run the demo's rewetting scenarios into OUT/scenarios")
     _report_options(d)
 
     c = sub.add_parser("compile", help="compile an inventory from its settings file")
@@ -116,8 +118,13 @@ def _run(args) -> int:
         settings = resource_dir("examples") / "demo" / "inventory.toml"
     else:
         settings = Path(args.settings)
-    return _compile(settings, Path(args.out), args.quiet, not args.no_report, args.archive,
+    code = _compile(settings, Path(args.out), args.quiet, not args.no_report, args.archive,
                     {"iterations": args.iterations, "seed": args.seed})
+    if args.command == "demo" and args.scenarios:
+        scen = argparse.Namespace(settings=str(settings), scenarios=None, out=str(Path(args.out) / "scenarios"),
+                                  no_report=args.no_report, quiet=args.quiet)
+        code = code or _scenarios(scen)
+    return code
 
 
 class _Progress:
