@@ -71,22 +71,22 @@ def _kt(est: pd.DataFrame, column: str) -> pd.DataFrame:
     return est.pivot_table(index="year", columns=column, values="co2eq_t", aggfunc="sum", fill_value=0.0) / 1000
 
 
-def emissions_by_pathway(emissions: pd.DataFrame) -> str:
+def _stacked_chart(emissions: pd.DataFrame, column: str, styles: dict, title: str, labels: dict | None = None) -> str:
+    """Net emissions stacked by ``column`` (pathway, land use, gas), in kt CO2-eq."""
     est = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
     fig, ax = plt.subplots(figsize=(6.2, 2.8))
-    _stack(ax, _kt(est, "pathway"), PATHWAY_STYLE, PATHWAY_LABEL)
+    _stack(ax, _kt(est, column), styles, labels)
     ax.set_ylabel("kt CO2-eq per year")
-    ax.set_title("Net emissions by pathway", loc="left")
+    ax.set_title(title, loc="left")
     return _svg(fig)
+
+
+def emissions_by_pathway(emissions: pd.DataFrame) -> str:
+    return _stacked_chart(emissions, "pathway", PATHWAY_STYLE, "Net emissions by pathway", PATHWAY_LABEL)
 
 
 def emissions_by_land_use(emissions: pd.DataFrame) -> str:
-    est = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
-    fig, ax = plt.subplots(figsize=(6.2, 2.8))
-    _stack(ax, _kt(est, "land_use"), LAND_USE_STYLE)
-    ax.set_ylabel("kt CO2-eq per year")
-    ax.set_title("Net emissions by land use", loc="left")
-    return _svg(fig)
+    return _stacked_chart(emissions, "land_use", LAND_USE_STYLE, "Net emissions by land use")
 
 
 def area_by_status(activity: pd.DataFrame) -> str:
@@ -106,12 +106,7 @@ def area_by_status(activity: pd.DataFrame) -> str:
 
 
 def contribution_by_gas(emissions: pd.DataFrame) -> str:
-    est = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
-    fig, ax = plt.subplots(figsize=(6.2, 2.8))
-    _stack(ax, _kt(est, "gas"), GAS_STYLE)
-    ax.set_ylabel("kt CO2-eq per year")
-    ax.set_title("Contribution of each gas", loc="left")
-    return _svg(fig)
+    return _stacked_chart(emissions, "gas", GAS_STYLE, "Contribution of each gas")
 
 
 def all_charts(result) -> dict[str, str]:
