@@ -47,7 +47,7 @@ AREA_BOUND_NOTE = " ha (the world's peatlands cover about 4e8 ha)"
 # names also refuse tab and line breaks.
 _CONTROLS = "\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069"
 MULTILINE_CONTROL = f"[{_CONTROLS}]"
-LINE_CONTROL = f"[{_CONTROLS}\t\n\r\x85]"
+LINE_CONTROL = f"[{_CONTROLS}\t\n\r]"
 
 HEADER_ALIASES = {
     "area": "area_ha", "area_(ha)": "area_ha", "hectares": "area_ha", "burned_area_ha": "burned_ha",
@@ -432,16 +432,17 @@ def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
         log.add("error", "override", f"unit cannot be converted for {row['quantity']}: {reasons[idx]}",
                 file=file, sheet=sheet, row=int(row[ROW]), column="unit", found=row["unit"],
                 expected=QUANTITIES[row["quantity"]][1] + " or a convertible unit")
-    bounds = known["quantity"].map(lambda q: QUANTITIES[q][2] or ((0.0, np.inf) if q in NON_NEGATIVE else None))
-    bounded = known[bounds.notna()]
-    low, high = bounds[bounded.index].str[0], bounds[bounded.index].str[1]
-    outside = bounded[(bounded["value"] < low) | (bounded["value"] > high)]
+    bounds = {q: QUANTITIES[q][2] or ((0.0, np.inf) if q in NON_NEGATIVE else (-np.inf, np.inf)) for q in QUANTITIES}
+    low = known["quantity"].map(lambda q: bounds[q][0]).astype(float)
+    high = known["quantity"].map(lambda q: bounds[q][1]).astype(float)
+    outside = known[(known["value"] < low) | (known["value"] > high)]
     for idx, row in outside.head(MAX_LISTED).iterrows():
-        lo, hi = bounds[idx]
+        lo, hi = bounds[row["quantity"]]
         log.add("error", "override", f"value out of range for {row['quantity']}", file=file, sheet=sheet,
                 row=int(row[ROW]), column="value", found=f"{row['value']:g}",
                 expected=f">= {lo:g}" if hi == np.inf else f"{lo:g} to {hi:g}")
-    fraction_q = known[known["quantity"].map(lambda q: QUANTITIES[q][1] == "fraction")]
+    # astype(bool): with no known quantity the empty mask must still select rows, not columns
+    fraction_q = known[known["quantity"].map(lambda q: QUANTITIES[q][1] == "fraction").astype(bool)]
     not_plain = fraction_q[fraction_q["unit"].str.strip().str.lower() != "fraction"]
     check.rows("error", "override", "give fractions as fractions (0 to 1)", not_plain, "unit", not_plain["unit"],
                "fraction")

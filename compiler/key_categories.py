@@ -193,6 +193,16 @@ def load_national_totals(path: str | Path, max_mb: float = 512) -> pd.DataFrame:
         for _, r in raw[bad].head(10).iterrows():
             problems.append(Finding("error", "national_totals", f"{col} is not a number", file=str(path),
                                     sheet=sheet, row=int(r[ROW]), column=col, found=str(r[col])))
+        infinite = values.notna() & ~np.isfinite(values.astype(float))
+        for _, r in raw[infinite].head(10).iterrows():
+            problems.append(Finding("error", "national_totals", f"{col} is not finite", file=str(path),
+                                    sheet=sheet, row=int(r[ROW]), column=col, found=str(r[col])))
+        if col == "year":
+            odd = values.notna() & np.isfinite(values.astype(float)) & (
+                (values != np.floor(values.fillna(0))) | (values < 1900) | (values > 2200))
+            for _, r in raw[odd].head(10).iterrows():
+                problems.append(Finding("error", "national_totals", "year is not a whole year from 1900 to 2200",
+                                        file=str(path), sheet=sheet, row=int(r[ROW]), column=col, found=str(r[col])))
         out[col] = values
     for col in ("category_code", "gas"):
         for _, r in raw[out[col] == ""].head(10).iterrows():

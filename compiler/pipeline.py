@@ -128,7 +128,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     if settings.previous_submission is not None:
         from .recalculations import compare, load_export, trend_effect
 
-        previous = load_export(settings.previous_submission)
+        previous = load_export(settings.previous_submission, settings.max_input_mb)
         current = emissions[emissions["notation_key"] == ""]
         by_cell, by_row = compare(previous, current)
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
@@ -161,7 +161,8 @@ def _analyse(result: InventoryResult, progress) -> None:
 
     from .qaqc import QaqcThresholds, run_checks
 
-    national = load_national_totals(result.settings.national_totals) if result.settings.national_totals else None
+    national = (load_national_totals(result.settings.national_totals, result.settings.max_input_mb)
+                if result.settings.national_totals else None)
     evidence = result.activity["evidence"] if "evidence" in result.activity else None
     if evidence is not None and not (evidence != "").any():
         evidence = None

@@ -37,6 +37,7 @@ MAX_LISTED = 10  # rows listed per problem before "and N more"
 MIB = 1024 * 1024
 SNIFF_BYTES = 4096
 ZIP_MAGIC = b"PK\x03\x04"
+UTF8_BOM = b"\xef\xbb\xbf"
 OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"  # compound file: .xls, or an encrypted .xlsx
 UTF8_EXPORT = ("UTF-8 text (with or without BOM): in a spreadsheet use 'Save as' > 'CSV UTF-8 (comma delimited)'; "
                "in a text editor save with the encoding UTF-8")
@@ -92,11 +93,13 @@ def _decode(data: bytes, fname: str) -> str:
     if head.startswith((b"\xff\xfe", b"\xfe\xff")) or head.count(0) * 4 >= len(head):
         raise _error("the file is UTF-16 (a spreadsheet's 'Unicode text' export), not UTF-8 text", fname,
                      expected=UTF8_EXPORT)
+    bom = len(UTF8_BOM) if data.startswith(UTF8_BOM) else 0
     try:
-        return data.decode("utf-8-sig")
+        return data[bom:].decode("utf-8")
     except UnicodeDecodeError as exc:
-        line = data[:exc.start].count(b"\n") + 1
-        raise _error(f"not UTF-8 text (byte {exc.start}, on line {line}, is {data[exc.start]:#04x}; the file is "
+        start = bom + exc.start
+        line = data[:start].count(b"\n") + 1
+        raise _error(f"not UTF-8 text (byte {start}, on line {line}, is {data[start]:#04x}; the file is "
                      "probably Latin-1 or Windows-1252, an older 'CSV' export)", fname, expected=UTF8_EXPORT) from None
 
 
@@ -151,12 +154,13 @@ def _row_texts(values) -> list[str]:
 
 
 def _looks_like_text(head: bytes) -> bool:
+    head = head[len(UTF8_BOM):] if head.startswith(UTF8_BOM) else head
     try:
-        text = head.decode("utf-8-sig")
+        text = head.decode("utf-8")
     except UnicodeDecodeError as exc:
         if exc.start < len(head) - 4:  # not merely a character cut at the end of the sample
             return False
-        text = head[:exc.start].decode("utf-8-sig")
+        text = head[:exc.start].decode("utf-8")
     return bool(text.strip()) and all(c.isprintable() or c in "\t\r\n" for c in text)
 
 

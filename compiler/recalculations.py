@@ -30,7 +30,7 @@ PARTS = ["activity_change", "factor_change", "strata_added", "strata_removed", "
 NEEDED = set(MATCH_KEYS) | {"category_code", "area_ha", "emission_t", "co2eq_t", "notation_key", "factor_id"}
 
 
-def load_export(path: str | Path) -> pd.DataFrame:
+def load_export(path: str | Path, max_mb: float = 512) -> pd.DataFrame:
     """Read emissions.csv (or .csv.gz) from an output folder or a file path."""
     path = Path(path)
     if path.is_dir():
@@ -39,18 +39,33 @@ def load_export(path: str | Path) -> pd.DataFrame:
     if not path.is_file():
         raise InputError([Finding("error", "compare", "no emissions.csv found", file=str(path),
                                   expected="an output folder of histosol or an emissions.csv file")])
+    import gzip
+    import zlib
+
+    if path.stat().st_size > max_mb * 1024 * 1024:
+        raise InputError([Finding("error", "compare", f"file is above the limit of {max_mb:g} MiB", file=str(path))])
     try:
         frame = pd.read_csv(path, dtype={k: str for k in MATCH_KEYS if k != "year"}, keep_default_na=False,
                             na_values={"emission_t": [""], "co2eq_t": [""], "area_ha": [""]})
-    except (ValueError, UnicodeDecodeError, pd.errors.ParserError) as exc:
-        raise InputError([Finding("error", "compare", f"not a readable emissions.csv ({exc})", file=str(path))]) from None
+    except (ValueError, UnicodeDecodeError, pd.errors.ParserError, gzip.BadGzipFile, EOFError, zlib.error,
+            OSError) as exc:
+        raise InputError([Finding("error", "compare", f"not a readable emissions.csv ({type(exc).__name__})",
+                                  file=str(path))]) from None
     missing = sorted(NEEDED - set(frame.columns))
     if missing:
         raise InputError([Finding("error", "compare", "not an emissions export of this tool: columns missing",
                                   file=str(path), column=", ".join(missing))])
     frame = frame[frame["notation_key"] == ""].copy()
     frame["co2eq_t"] = pd.to_numeric(frame["co2eq_t"], errors="coerce")
-    frame["year"] = frame["year"].astype(int)
+    years = pd.to_numeric(frame["year"], errors="coerce")
+    for col in ("area_ha", "emission_t"):
+        frame[col] = pd.to_numeric(frame[col], errors="coerce")
+    bad = years.isna() | (years != np.floor(years.fillna(0)))
+    if bad.any():
+        first = int(np.flatnonzero(bad.to_numpy())[0])
+        raise InputError([Finding("error", "compare", "year is not a whole number", file=str(path),
+                                  row=int(frame.index[first]) + 2, column="year", found=str(frame["year"].iloc[first]))])
+    frame["year"] = years.astype(int)
     frame.attrs["file"] = str(path)
     return frame
 

@@ -168,11 +168,13 @@ def load_settings(path: str | Path, overrides: dict[str, Any] | None = None) -> 
     if head.startswith((b"\xff\xfe", b"\xfe\xff")) or (head and head.count(0) * 4 >= len(head)):
         raise SettingsError([_err("not valid TOML: the file is UTF-16 text, not UTF-8", fname,
                                   expected="the settings saved as UTF-8 text")])
+    bom = 3 if data.startswith(b"\xef\xbb\xbf") else 0  # a BOM, as some editors write, is dropped
     try:
-        text = data.decode("utf-8-sig")  # a BOM, as some editors write, is dropped
+        text = data[bom:].decode("utf-8")
     except UnicodeDecodeError as exc:
-        line = data[:exc.start].count(b"\n") + 1
-        raise SettingsError([_err(f"not valid TOML: the file is not UTF-8 text (byte {exc.start}, on line {line})",
+        start = bom + exc.start
+        line = data[:start].count(b"\n") + 1
+        raise SettingsError([_err(f"not valid TOML: the file is not UTF-8 text (byte {start}, on line {line})",
                                   fname, expected="the settings saved as UTF-8 text")]) from None
     try:
         parsed = tomllib.loads(text)

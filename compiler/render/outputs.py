@@ -55,6 +55,7 @@ def atomic_folder(out_dir: Path, fill) -> Path:
     If ``fill`` fails, the temporary folder is removed and ``out_dir`` is untouched.
     """
     out_dir = out_dir.resolve()
+    _restore_interrupted_swap(out_dir)
     if out_dir.exists() and not out_dir.is_dir():
         raise InputError([Finding("error", "output", "output path exists and is not a folder", file=str(out_dir))])
     if out_dir.is_dir() and any(out_dir.iterdir()) and not (out_dir / MARKER).exists():
@@ -71,6 +72,17 @@ def atomic_folder(out_dir: Path, fill) -> Path:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     return out_dir
+
+
+def _restore_interrupted_swap(out_dir: Path) -> None:
+    """A run killed between the two renames of :func:`_swap` leaves only ``.OUT.old-PID``: put it back."""
+    if out_dir.exists():
+        return
+    olds = sorted(out_dir.parent.glob(f".{out_dir.name}.old-*"))
+    for old in olds:
+        if (old / MARKER).exists():
+            os.rename(old, out_dir)
+            return
 
 
 def _swap(tmp: Path, out_dir: Path) -> None:
