@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .factors import FactorLibrary
-from .matching import most_specific
+from .matching import distinct_codes, most_specific
 
 ALLOC_KEYS = ["pathway", "land_use", "subtype", "remaining_or_converted"]
 ALLOC_WEIGHTS = {"pathway": 8, "land_use": 4, "subtype": 2, "remaining_or_converted": 1}
@@ -34,7 +34,8 @@ GASES = ("CO2", "CH4", "N2O", "CO")
 def allocate(emissions: pd.DataFrame, library: FactorLibrary) -> pd.DataFrame:
     """Add ``category_code`` (where reported) and ``land_category_code`` (the land category of the stratum)."""
     rules = library.allocation
-    keys = emissions[ALLOC_KEYS].drop_duplicates().reset_index(drop=True)
+    codes, first = distinct_codes(emissions, ALLOC_KEYS)
+    keys = emissions[ALLOC_KEYS].iloc[first].reset_index(drop=True)  # as drop_duplicates(), in that order
     best, ambiguous, unmatched = most_specific(keys, rules.assign(_id=range(len(rules))), ALLOC_KEYS,
                                                ALLOC_WEIGHTS, "_id")
     if not ambiguous.empty or len(unmatched):
@@ -43,7 +44,10 @@ def allocate(emissions: pd.DataFrame, library: FactorLibrary) -> pd.DataFrame:
     land = keys.assign(pathway="")
     best2, _, _ = most_specific(land, rules.assign(_id=range(len(rules))), ALLOC_KEYS, ALLOC_WEIGHTS, "_id")
     keys["land_category_code"] = keys.index.map(dict(zip(best2["_sid"], rules["category_code"].to_numpy()[best2["_id"]])))
-    out = emissions.merge(keys, on=ALLOC_KEYS, how="left")
+    # Each row's codes, gathered by its key combination (what a left merge on the keys gives, in row order).
+    out = emissions.reset_index(drop=True)
+    for col in ("category_code", "land_category_code"):
+        out[col] = pd.Series(keys[col].array.take(codes), index=out.index)
     return out
 
 
@@ -53,21 +57,25 @@ def category_table(emissions: pd.DataFrame, library: FactorLibrary, years) -> pd
     grid = [(c, g) for c, gases in zip(cats["category_code"], cats["gases"]) for g in gases.split(";")]
     frame = pd.DataFrame(grid, columns=["category_code", "gas"]).merge(
         pd.DataFrame({"year": list(years)}), how="cross")
-    est = emissions[emissions["notation_key"] == ""]
     cell = ["category_code", "gas", "year"]
+    # Only the columns each step reads are copied out of the (wide) emissions table.
+    is_estimate = (emissions["notation_key"] == "").to_numpy(dtype=bool)
+    est = emissions.loc[is_estimate, cell + ["emission_t", "co2eq_t", "area_ha", "input_file", "record_id"]]
     sums = est.groupby(cell, as_index=False).agg(
         emission_t=("emission_t", "sum"), co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)))
     # Area of the strata behind a cell, each stratum row counted once (not once per pathway).
     area = (est.drop_duplicates(cell + ["input_file", "record_id"]).groupby(cell, as_index=False)["area_ha"].sum())
     frame = frame.merge(sums, on=cell, how="left").merge(area, on=cell, how="left")
     # Notation rows, collapsed per cell with their reasons.
-    notes = emissions[emissions["notation_key"] != ""]
+    # (Distinct key and reason per cell first: the sets below are the same, the strings far fewer.)
+    notes = emissions.loc[~is_estimate, cell + ["notation_key", "notation_reason"]].drop_duplicates()
     reasons = (notes.groupby(["category_code", "gas", "year"])
                .agg(notation_key=("notation_key", lambda s: "/".join(sorted(set(s)))),
                     notation_reason=("notation_reason", lambda s: "; ".join(sorted(set(s))))).reset_index())
     frame = frame.merge(reasons, on=["category_code", "gas", "year"], how="left")
     # IE: a stratum's gas reported under another category (N2O to 3.C.4, fire non-CO2 to 3.C.1).
-    moved = emissions[(emissions["category_code"] != emissions["land_category_code"])]
+    moved_rows = (emissions["category_code"] != emissions["land_category_code"]).to_numpy(dtype=bool)
+    moved = emissions.loc[moved_rows, ["land_category_code", "gas", "year", "category_code"]].drop_duplicates()
     ie = (moved.groupby(["land_category_code", "gas", "year"])["category_code"]
           .agg(lambda s: ", ".join(sorted(set(s)))).reset_index()
           .rename(columns={"land_category_code": "category_code", "category_code": "_ie_in"}))

@@ -14,7 +14,7 @@ import pandas as pd
 from . import equations
 from .errors import FindingLog
 from .factors import KEYS, QUANTITIES, FactorLibrary, apply_overrides, override_rows_to_register, resolve_defaults
-from .matching import missing_distinctions
+from .matching import distinct_codes, missing_distinctions
 from .readers import MAX_LISTED, ROW
 from .settings import Settings
 from .units import basis_ratio, conversion_factor, tonnes_of_gas_per_unit
@@ -58,18 +58,37 @@ def _match_frame(rows: pd.DataFrame, library: FactorLibrary, settings: Settings)
     return m
 
 
-def _resolve(rows: pd.DataFrame, quantity: str, library: FactorLibrary, settings: Settings,
-             overrides: pd.DataFrame) -> pd.Series:
-    """Factor id per row (NaN where nothing applies): default by stratum, then overrides by row."""
+def _strata(rows: pd.DataFrame, library: FactorLibrary, settings: Settings, cache: dict | None):
+    """The match keys of ``rows``: distinct key rows (in order of first appearance) and each row's code.
+
+    The same for every quantity resolved on the same rows, so it is computed once per row set.
+    """
+    entry = cache.get(id(rows)) if cache is not None else None
+    if entry is not None and entry[0] is rows:
+        return entry[1], entry[2]
     match = _match_frame(rows, library, settings)
-    distinct = match.drop_duplicates().reset_index(drop=True)
+    codes, first = distinct_codes(match, KEYS)
+    distinct = match.iloc[first].reset_index(drop=True)
+    if cache is not None:
+        cache[id(rows)] = (rows, codes, distinct)
+    return codes, distinct
+
+
+def _resolve(rows: pd.DataFrame, quantity: str, library: FactorLibrary, settings: Settings,
+             overrides: pd.DataFrame, cache: dict | None = None) -> pd.Series:
+    """Factor id per row (NaN where nothing applies): default by stratum, then overrides by row."""
+    codes, strata = _strata(rows, library, settings, cache)
+    distinct = strata.copy()
     best, ambiguous, _ = resolve_defaults(distinct, library, settings.factor_set, quantity)
     if not ambiguous.empty:
         raise RuntimeError(f"factor table ambiguity for {quantity}: {ambiguous['factor_id'].tolist()}")
     distinct["factor_id"] = distinct.index.map(dict(zip(best["_sid"], best["factor_id"])))
-    joined = match.reset_index().merge(distinct, on=KEYS, how="left").set_index("index")
-    frame = rows.copy()
-    frame["factor_id"] = joined.loc[rows.index, "factor_id"].to_numpy(dtype=object)
+    # The stratum's factor on each row (a gather by stratum code, not a join on the key columns).
+    per_row = distinct["factor_id"].to_numpy(dtype=object)[codes] if len(codes) else np.array([], dtype=object)
+    # apply_overrides reads the stratum keys, region, year and the default factor_id of each row.
+    needed = [c for c in rows.columns if c in KEYS or c in ("region", "year")]
+    frame = pd.DataFrame({c: rows[c] for c in needed}, index=rows.index)
+    frame["factor_id"] = per_row
     if "fire_type" not in frame:
         frame["fire_type"] = ""
     return frame["factor_id"], apply_overrides(frame, overrides, quantity)
@@ -110,27 +129,33 @@ def _note_undistinguished(rows: pd.DataFrame, ids: pd.Series, register: pd.DataF
 
     One note per key, value and table, naming the strata (climate zone and land use) concerned.
     """
-    info = register.set_index("factor_id").reindex(ids.dropna().unique())
+    codes, uniques = pd.factorize(ids)  # -1 where no factor applies
+    info = register.set_index("factor_id").reindex(uniques)
     if info.empty:
         return
     file = rows.attrs.get("file", "")
-    present = ids.notna()
+    present = codes >= 0
     for key in ("nutrient_status", "drainage_depth", "subtype"):
         if key not in rows:
             continue
-        rule_value = ids[present].map(info[key])
-        given = rows.loc[present, key]
-        unused = (given != "") & (rule_value == "")
+        # The matched row leaves the key blank (per distinct id), the stratum gives it (per row).
+        rule_blank = (info[key] == "").to_numpy(dtype=bool)
+        unused = present & rule_blank[np.maximum(codes, 0)] & (rows[key] != "").to_numpy(dtype=bool)
         if not unused.any():
             continue
-        sub = rows.loc[unused[unused].index]
-        tables = ids[sub.index].map(info["table"]).replace("", "the override")
-        for (value, table), group in sub.groupby([sub[key], tables]):
-            strata = {f"{z} {l.replace('_', ' ')}" for z, l in zip(group["climate_zone"], group["land_use"])}
+        sub = rows[unused]
+        table_of = info["table"].replace("", "the override")
+        # First row of each (value, table, climate zone, land use): one grouped minimum, then a loop over
+        # those combinations (a handful).
+        firsts = pd.DataFrame({"value": sub[key], "table": _gather(table_of, codes[unused], sub.index),
+                               "zone": sub["climate_zone"], "land_use": sub["land_use"], "row": sub[ROW]}
+                              ).groupby(["value", "table", "zone", "land_use"])["row"].min()
+        for (value, table), part in firsts.groupby(level=["value", "table"]):
+            strata = {f"{z} {l.replace('_', ' ')}" for _, _, z, l in part.index}
             entry = log.pending.setdefault((file, key, value), {"tables": set(), "strata": set(), "row": None})
             entry["tables"].add(table)
             entry["strata"] |= strata
-            first = int(group[ROW].min())
+            first = int(part.min())
             entry["row"] = first if entry["row"] is None else min(entry["row"], first)
 
 
@@ -157,6 +182,7 @@ def compute(activity: pd.DataFrame, fires: pd.DataFrame, overrides: pd.DataFrame
     acts = activity[~activity["_bad"]].copy() if not activity.empty else activity
     acts.attrs = activity.attrs
     convention = settings.mass_ratios
+    cache: dict = {}  # distinct strata of each row set, shared by its pathways and quantities
 
     for status in ("drained", "rewetted"):
         rows = acts[acts["soil_status"] == status]
@@ -164,7 +190,8 @@ def compute(activity: pd.DataFrame, fires: pd.DataFrame, overrides: pd.DataFrame
             continue
         rows.attrs = acts.attrs
         for _, cov in coverage[coverage["soil_status"] == status].iterrows():
-            pieces.append(_pathway(rows, cov, library, settings, overrides, lookup, register, log, convention))
+            pieces.append(_pathway(rows, cov, library, settings, overrides, lookup, register, log, convention,
+                                   cache=cache))
     if fires is not None and not fires.empty:
         good = fires[~fires["_bad"]].copy()
         good.attrs = fires.attrs
@@ -172,45 +199,55 @@ def compute(activity: pd.DataFrame, fires: pd.DataFrame, overrides: pd.DataFrame
             good[col] = ""
         for _, cov in coverage[coverage["soil_status"] == "fire"].iterrows():
             pieces.append(_pathway(good, cov, library, settings, overrides, lookup, register, log, convention,
-                                   area_column="burned_ha"))
+                                   area_column="burned_ha", cache=cache))
     _flush_undistinguished(log)
     pieces = [p for p in pieces if not p.empty]
     emissions = pd.concat(pieces, ignore_index=True) if pieces else pd.DataFrame(columns=RESULT_COLUMNS)
     return EngineResult(emissions=emissions[RESULT_COLUMNS], register=register)
 
 
-def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, settings: Settings,
-             overrides: pd.DataFrame, lookup: pd.DataFrame, register: pd.DataFrame, log: FindingLog,
-             convention: str, area_column: str = "area_ha") -> pd.DataFrame:
-    pathway = cov["pathway"]
-    gas, main_q, second_q = PATHWAYS[pathway]
-    out = pd.DataFrame({c: rows[c] if c in rows else "" for c in STRATUM_COLUMNS}, index=rows.index)
-    out["fire_type"] = rows["fire_type"] if "fire_type" in rows else ""
-    out["pathway"], out["gas"] = pathway, gas
-    out["area_ha"] = rows[area_column].astype(float)
-    out["input_file"] = rows.attrs.get("file", "")
-    out["input_row"] = rows[ROW].astype(int)
-    out["record_id"] = rows.index.to_numpy()
-    out["activity_source"] = rows["activity_source"] if "activity_source" in rows else "reported"
-    out["equation"] = cov["equation"]
+def _base_frame(rows: pd.DataFrame, cov: pd.Series, pathway: str, gas: str, area_column: str) -> pd.DataFrame:
+    """The stratum, trace and blank result columns of one pathway, one row per row of ``rows``."""
+    columns = {c: rows[c] if c in rows else "" for c in STRATUM_COLUMNS}
+    columns["fire_type"] = rows["fire_type"] if "fire_type" in rows else ""
+    columns["pathway"], columns["gas"] = pathway, gas
+    columns["area_ha"] = rows[area_column].astype(float)
+    columns["input_file"] = rows.attrs.get("file", "")
+    columns["input_row"] = rows[ROW].astype(int)
+    columns["record_id"] = rows.index.to_numpy()
+    columns["activity_source"] = rows["activity_source"] if "activity_source" in rows else "reported"
+    columns["equation"] = cov["equation"]
     for col in ("factor_id", "default_factor_id", "factor_unit", "tier", "parameter_id", "parameter_unit", "emission_basis",
                 "notation_key", "notation_reason"):
-        out[col] = ""
+        columns[col] = ""
     for col in ("factor_value", "parameter_value", "emission_basis_t", "emission_t", "area_basis_ha", "conversion"):
-        out[col] = np.nan
+        columns[col] = np.nan
+    return pd.DataFrame(columns, index=rows.index)
+
+
+def _gather(column: pd.Series, codes: np.ndarray, index: pd.Index) -> pd.Series:
+    """``column`` (one value per distinct id) taken at ``codes``, keeping its dtype: a vectorised map."""
+    return pd.Series(column.array.take(codes), index=index)
+
+
+def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, settings: Settings,
+             overrides: pd.DataFrame, lookup: pd.DataFrame, register: pd.DataFrame, log: FindingLog,
+             convention: str, area_column: str = "area_ha", cache: dict | None = None) -> pd.DataFrame:
+    pathway = cov["pathway"]
+    gas, main_q, second_q = PATHWAYS[pathway]
     if cov["status"] != "estimated":
+        out = _base_frame(rows, cov, pathway, gas, area_column)
         out["notation_key"], out["notation_reason"] = cov["status"], cov["reason"]
         return out
 
-    default_ids, ids = _resolve(rows, main_q, library, settings, overrides)
-    out["default_factor_id"] = default_ids.fillna("")
+    default_ids, ids = _resolve(rows, main_q, library, settings, overrides, cache)
     missing = ids.isna().to_numpy().copy()
     if missing.any():
         _report_missing(rows, missing, main_q, library, settings, log)
     _note_undistinguished(rows, ids, register, main_q, log)
     use_secondary = bool(second_q) and not (second_q == "frac_ditch" and cov["soil_status"] == "rewetted")
     if use_secondary:
-        _, sec_ids = _resolve(rows, second_q, library, settings, overrides)
+        _, sec_ids = _resolve(rows, second_q, library, settings, overrides, cache)
         if second_q == "frac_ditch" and "ditch_fraction" in rows:
             given = rows["ditch_fraction"].notna()
             sec_ids = sec_ids.astype(object).where(~given, "activity:ditch_fraction")
@@ -219,20 +256,30 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
             _report_missing(rows, sec_missing, second_q, library, settings, log)
         missing |= sec_missing
     if missing.all():
-        return out.iloc[0:0]
-    out = out[~missing]
-    ids = ids[~missing]
+        return _base_frame(rows.iloc[0:0], cov, pathway, gas, area_column)
+    keep = ~missing
+    if missing.any():
+        rows, ids, default_ids = rows[keep], ids[keep], default_ids[keep]
+        if use_secondary:
+            sec_ids = sec_ids[keep]
+    out = _base_frame(rows, cov, pathway, gas, area_column)
+    out["default_factor_id"] = default_ids.fillna("")
+    # Factor value, unit and tier of each row: looked up once per distinct id, then gathered by code.
+    codes, uniques = pd.factorize(ids)
+    info = lookup[["value", "unit", "tier"]].reindex(uniques)
     out["factor_id"] = ids
-    out["factor_value"] = ids.map(lookup["value"]).astype(float)
-    out["factor_unit"] = ids.map(lookup["unit"])
-    out["tier"] = ids.map(lookup["tier"])
+    out["factor_value"] = info["value"].astype(float).to_numpy()[codes]
+    out["factor_unit"] = _gather(info["unit"], codes, out.index)
+    out["tier"] = _gather(info["tier"], codes, out.index)
     area = out["area_ha"].to_numpy()
 
     if use_secondary:
-        sec = sec_ids[~missing]
+        sec = sec_ids
         from_activity = (sec == "activity:ditch_fraction").to_numpy()
-        sec_value = sec.map(lookup["value"]).astype(float).to_numpy().copy()
-        sec_unit = sec.map(lookup["unit"]).to_numpy(dtype=object).copy()
+        sec_codes, sec_uniques = pd.factorize(sec)
+        sec_info = lookup[["value", "unit"]].reindex(sec_uniques)
+        sec_value = sec_info["value"].astype(float).to_numpy()[sec_codes]
+        sec_unit = sec_info["unit"].to_numpy(dtype=object)[sec_codes]
         if from_activity.any():
             sec_value[from_activity] = rows.loc[out.index[from_activity], "ditch_fraction"].to_numpy(dtype=float)
             sec_unit[from_activity] = "fraction"
@@ -268,14 +315,16 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
     else:
         area_basis = area
     out["area_basis_ha"] = area_basis
-    # t of gas per (ha x factor unit), and the element basis the factor is printed on.
-    per_unit = {u: tonnes_of_gas_per_unit(u, convention) for u in units.unique()}
-    to_gas = units.map(lambda u: per_unit[u][1]).to_numpy(dtype=float)
-    basis_name = units.map(lambda u: u.split()[1]).to_numpy(dtype=object)
-    to_basis = units.map(lambda u: tonnes_of_gas_per_unit(u, convention)[1]
-                         / basis_ratio(u.split()[1], gas, convention)).to_numpy(dtype=float)
+    # t of gas per (ha x factor unit), and the element basis the factor is printed on: computed once per
+    # distinct unit (a handful), then gathered onto the rows by unit code.
+    unit_codes, unit_uniques = pd.factorize(units)
+    per_unit = np.array([tonnes_of_gas_per_unit(u, convention)[1] for u in unit_uniques], dtype=float)
+    to_gas = per_unit[unit_codes]
+    to_basis = np.array([t / basis_ratio(u.split()[1], gas, convention) for u, t in zip(unit_uniques, per_unit)],
+                        dtype=float)[unit_codes]
+    basis_name = "t " + pd.Series(np.array([u.split()[1] for u in unit_uniques], dtype=object))
     product = area_basis * values
-    out["emission_basis"] = "t " + pd.Series(basis_name, index=out.index)
+    out["emission_basis"] = _gather(basis_name, unit_codes, out.index)
     out["emission_basis_t"] = product * to_basis
     out["emission_t"] = product * to_gas
     out["conversion"] = to_gas  # emission_t = area_basis_ha x factor_value x conversion
@@ -284,5 +333,6 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
 
 def _unit_scale(units: pd.Series, target: str, convention: str) -> np.ndarray:
     """Per-row multiplier from each row's unit to ``target`` (computed once per distinct unit)."""
-    scale = {u: conversion_factor(u, target, convention) for u in pd.unique(units)}
-    return units.map(scale).to_numpy(dtype=float)
+    codes, uniques = pd.factorize(units)
+    scale = np.array([conversion_factor(u, target, convention) for u in uniques], dtype=float)
+    return scale[codes]

@@ -116,8 +116,9 @@ def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: Findi
     file = activity.attrs.get("file", "")
     mode_by_region = mode_by_region or {}
 
-    table = good.pivot_table(index=SERIES_KEYS, columns="year", values="area_ha", aggfunc="sum", dropna=False,
-                             observed=True)
+    # One row per observed stratum (a grouped sum, then years as columns): the same table as a pivot over the
+    # strata, without first laying out every combination of the key values (which grows as their product).
+    table = good.groupby(SERIES_KEYS + ["year"], sort=True)["area_ha"].sum().unstack("year")
     table = table.reindex(columns=years)
     table = table[table.notna().any(axis=1)]
     known = table.to_numpy(dtype=float)
