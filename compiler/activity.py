@@ -339,8 +339,17 @@ def _load(path: Path, sheet: str, spec: list[Column], log: FindingLog, settings:
 
 
 def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
-    """The tidy stratum table: one row per year, region and stratum."""
-    frame, sheet = _load(settings.activity, settings.activity_sheet, ACTIVITY_COLUMNS, log, settings)
+    """The tidy stratum table: one row per year, region and stratum.
+
+    A Parquet activity file holds parcels: they are aggregated to strata out of core first
+    (:mod:`compiler.parcels`, engine from ``[inputs] engine``), then checked like a CSV.
+    """
+    if Path(settings.activity).suffix.lower() == ".parquet":
+        from .parcels import load_parcel_activity
+
+        frame, sheet = load_parcel_activity(settings, log)
+    else:
+        frame, sheet = _load(settings.activity, settings.activity_sheet, ACTIVITY_COLUMNS, log, settings)
     if frame.empty:
         return frame
     check = _Checker(log, str(settings.activity), sheet)

@@ -51,6 +51,7 @@ SCHEMA: dict[str, dict[str, tuple]] = {
     "inputs": {
         "activity": ((str,), _REQUIRED, None, "activity data (CSV or XLSX)"),
         "activity_sheet": ((str,), "", None, "sheet of an XLSX activity file (blank = the first)"),
+        "engine": ((str,), "duckdb", ("duckdb", "dask"), "aggregation engine for a Parquet parcel file"),
         "fires": ((str,), "", None, "organic-soil fires (CSV or XLSX)"),
         "overrides": ((str,), "", None, "country- or region-specific factors (CSV or XLSX)"),
         "factor_review": ((str,), "", None, "the agency's check of shipped factors (CSV or XLSX)"),
@@ -105,6 +106,7 @@ class Settings:
     ipcc2006_temperate: str
     activity: Path
     activity_sheet: str = ""
+    engine: str = "duckdb"
     fires: Path | None = None
     overrides: Path | None = None
     factor_review: Path | None = None
@@ -305,7 +307,7 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         name=values["name"], submission_year=values["submission_year"], first_year=values["first_year"],
         last_year=values["last_year"], compile_date=compile_date, factor_set=values["factor_set"],
         gwp=values["gwp"], mass_ratios=values["mass_ratios"], ipcc2006_temperate=values["ipcc2006_temperate"],
-        activity=paths["activity"], activity_sheet=values["activity_sheet"], fires=paths["fires"],
+        activity=paths["activity"], activity_sheet=values["activity_sheet"], engine=values["engine"], fires=paths["fires"],
         overrides=paths["overrides"], factor_review=paths["factor_review"],
         national_totals=paths["national_totals"], scenarios=paths["scenarios"],
         previous_submission=paths["previous_submission"], review_log=paths["review_log"],
