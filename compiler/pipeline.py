@@ -118,7 +118,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     gwp = gwp_table(library.gwp, settings.gwp)
     emissions["co2eq_t"] = co2_equivalent(emissions["emission_t"], emissions["gas"], gwp)
     emissions = allocate(emissions, library)
-    emissions["input_file"] = emissions["input_file"].map(lambda p: Path(p).name if p else "")
+    names = {p: (Path(p).name if p else "") for p in emissions["input_file"].unique()}
+    emissions["input_file"] = emissions["input_file"].map(names)  # once per distinct file, not per row
     emissions = emissions.sort_values(["year", "region", "category_code", "pathway", "input_row"],
                                       kind="stable").reset_index(drop=True)
     categories = category_table(emissions, library, settings.years)
@@ -133,7 +134,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
         by_cell, by_row = compare(previous, current)
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
                          **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
-    used_ids = set(emissions["factor_id"]) | set(emissions["parameter_id"])
+    used_ids = set(emissions["factor_id"].unique()) | set(emissions["parameter_id"].unique())
     factors_used = engine.register[engine.register["factor_id"].isin(used_ids)].copy()
     factors_used = _attach_review(factors_used, review)
 
@@ -208,7 +209,7 @@ def _check_review(emissions, review, settings, log) -> None:
     if review is None or review.empty:
         return
     differs = review[review["result"] == "differs"]
-    used = set(emissions["factor_id"]) | set(emissions["parameter_id"])
+    used = set(emissions["factor_id"].unique()) | set(emissions["parameter_id"].unique())
     for _, row in differs.iterrows():
         if row["factor_id"] in used:
             log.add("error", "review_differs",

@@ -91,7 +91,7 @@ def _workbook(result, outcome, em, areas, path: Path) -> None:
     wb.properties.created = stamp
     buffer = io.BytesIO()
     wb.save(buffer)
-    path.write_bytes(_fix_zip(buffer.getvalue(), stamp))
+    _fix_zip(buffer.getvalue(), stamp, None, path)
 
 
 def _report(result, outcome, folder: Path) -> None:

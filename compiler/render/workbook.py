@@ -149,11 +149,11 @@ def write_workbook(result, path: Path) -> None:
            "co2eq_t": FORMATS["t"], "emission_basis_t": FORMATS["t"], "factor_value": FORMATS["factor"],
            "parameter_value": FORMATS["factor"], "year": FORMATS["int"], "input_row": FORMATS["int"]}
     parts = max(1, int(np.ceil(len(em) / chunk)))
-    bulk: dict[int, pd.DataFrame] = {}  # sheet number in the file -> rows written as XML after saving
+    bulk: dict[int, tuple] = {}  # sheet number in the file -> (frame, columns, first, stop): rows written as XML
     for i in range(parts):
         title = "strata" if parts == 1 else f"strata_{i + 1}"
         _sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30})
-        bulk[len(wb.worksheets)] = em.iloc[i * chunk:(i + 1) * chunk][EXPORT_COLUMNS]
+        bulk[len(wb.worksheets)] = (em, EXPORT_COLUMNS, i * chunk, min((i + 1) * chunk, len(em)))
 
     # trace: every category-gas cell of the base and latest year, linked to its strata and factor rows
     strata_row = pd.Series(np.arange(len(em)) + 2, index=em.index)  # row numbers in the strata sheet
@@ -221,42 +221,67 @@ def write_workbook(result, path: Path) -> None:
     wb.properties.created = stamp
     buffer = io.BytesIO()
     wb.save(buffer)
-    path.write_bytes(_fix_zip(buffer.getvalue(), stamp, bulk))
+    _fix_zip(buffer.getvalue(), stamp, bulk, path)
 
 
 _XML_ESCAPES = [("&", "&amp;"), ("<", "&lt;"), (">", "&gt;")]
 _XML_ILLEGAL = r"[\x00-\x08\x0b\x0c\x0e-\x1f]"
 
 
-def _rows_xml(frame: pd.DataFrame, first_row: int) -> str:
-    """Rows of a sheet as SpreadsheetML, built column by column (vectorised, no loop over rows).
+ROWS_PER_PIECE = 20_000  # strata rows turned into XML at a time (bounds memory; the bytes do not depend on it)
+SPOOL_BYTES = 64 * 1024 * 1024  # a streamed sheet is kept in memory up to this size, then spooled to disk
 
-    Text is written as inline strings (never formulas), numbers as numbers, blanks as absent cells.
+
+def _column_text(values: pd.Series) -> tuple[np.ndarray, bool]:
+    """Cell text of one column (object array, "" for an absent cell) and whether it is numeric.
+
+    The same text as the column-wise expressions it replaces: ``repr`` of the float (integer
+    columns without ".0"), XML-escaped text with the illegal control characters removed. Computed
+    once per distinct value (by bit pattern for numbers, so -0.0 stays "-0.0").
+    """
+    if pd.api.types.is_numeric_dtype(values):
+        floats = values.astype(float).to_numpy()
+        finite = values.notna().to_numpy() & np.isfinite(floats)
+        codes, uniques = pd.factorize(floats.view(np.int64))
+        texts = [repr(v) for v in uniques.view(np.float64).tolist()]
+        if pd.api.types.is_integer_dtype(values):
+            texts = [t[:-2] if t.endswith(".0") else t for t in texts]
+        out = np.array(texts, dtype=object)[codes] if len(texts) else np.empty(len(values), dtype=object)
+        out[~finite] = ""
+        return out, True
+    text = values.astype(object).where(values.notna(), "").astype(str)
+    codes, uniques = pd.factorize(text)
+    cleaned = []
+    for t in uniques:
+        for a, b in _XML_ESCAPES:
+            t = t.replace(a, b)
+        cleaned.append(re.sub(_XML_ILLEGAL, "", t))
+    out = np.array(cleaned, dtype=object)[codes] if cleaned else np.empty(len(values), dtype=object)
+    return out, False
+
+
+def _rows_xml_pieces(frame: pd.DataFrame, first_row: int, rows_per_piece: int = ROWS_PER_PIECE):
+    """Rows of a sheet as SpreadsheetML, ``rows_per_piece`` rows at a time (UTF-8 bytes).
+
+    Text is written as inline strings (never formulas), numbers as numbers, blanks as absent cells;
+    the concatenated pieces are the bytes the column-wise version produced in one string.
     """
     from openpyxl.utils import get_column_letter
 
-    n = len(frame)
-    if n == 0:
-        return ""
-    numbers = pd.Series(np.arange(first_row, first_row + n), index=frame.index).astype(str)
-    row_xml = pd.Series("", index=frame.index)
-    for j, col in enumerate(frame.columns):
-        ref = get_column_letter(j + 1) + numbers
-        values = frame[col]
-        if pd.api.types.is_numeric_dtype(values):
-            finite = values.notna() & np.isfinite(values.astype(float))
-            text = values.astype(float).map(repr).where(finite, "")
-            text = text.str.replace(r"\.0$", "", regex=True) if pd.api.types.is_integer_dtype(values) else text
-            cell = ('<c r="' + ref + '"><v>' + text + "</v></c>").where(finite, "")
-        else:
-            text = values.astype(object).where(values.notna(), "").astype(str)
-            for a, b in _XML_ESCAPES:
-                text = text.str.replace(a, b, regex=False)
-            text = text.str.replace(_XML_ILLEGAL, "", regex=True)
-            cell = ('<c r="' + ref + '" t="inlineStr"><is><t xml:space="preserve">' + text + "</t></is></c>").where(
-                text != "", "")
-        row_xml = row_xml + cell
-    return ("<row r=\"" + numbers + "\">" + row_xml + "</row>").str.cat()
+    letters = [get_column_letter(j + 1) for j in range(len(frame.columns))]
+    for a in range(0, len(frame), rows_per_piece):
+        part = frame.iloc[a:a + rows_per_piece]
+        numbers = [str(i) for i in range(first_row + a, first_row + a + len(part))]
+        columns = [[f'<row r="{n}">' for n in numbers]]
+        for letter, col in zip(letters, part.columns):
+            text, numeric = _column_text(part[col])
+            if numeric:
+                cells = [f'<c r="{letter}{n}"><v>{v}</v></c>' if v else "" for n, v in zip(numbers, text)]
+            else:
+                cells = [f'<c r="{letter}{n}" t="inlineStr"><is><t xml:space="preserve">{v}</t></is></c>' if v else ""
+                         for n, v in zip(numbers, text)]
+            columns.append(cells)
+        yield ("</row>".join("".join(cells) for cells in zip(*columns)) + "</row>").encode("utf-8")
 
 
 def _table(wb, title, frame: pd.DataFrame, notes=(), widths=None):
@@ -300,23 +325,42 @@ def _analysis_sheets(wb, result) -> None:
         _table(wb, "key_categories", kc.table, [kc.note], {"assessments": 40, "message": 50})
 
 
-def _fix_zip(data: bytes, stamp: _dt.datetime, bulk: dict[int, pd.DataFrame] | None = None) -> bytes:
-    """Same bytes for the same content: fixed entry dates and document timestamps."""
+def _fix_zip(data: bytes, stamp: _dt.datetime, bulk: dict[int, tuple] | None, path: Path) -> None:
+    """Write the workbook to ``path`` with the same bytes for the same content: fixed entry dates and
+    document timestamps; the strata rows streamed into their sheets, a piece at a time.
+
+    A streamed sheet is first spooled (in memory up to SPOOL_BYTES, then on disk) so that its size is
+    known before its entry is opened: the zip header (ZIP64 or not) is then the one ``writestr`` writes.
+    """
+    import shutil
+    import tempfile
+
     src = zipfile.ZipFile(io.BytesIO(data))
-    out = io.BytesIO()
     iso = stamp.strftime("%Y-%m-%dT%H:%M:%SZ")
-    with zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as dst:
         for info in src.infolist():
             content = src.read(info.filename)
-            sheet = re.fullmatch(r"xl/worksheets/sheet(\d+)\.xml", info.filename)
-            if sheet and bulk and int(sheet.group(1)) in bulk:
-                rows = _rows_xml(bulk[int(sheet.group(1))], 2).encode("utf-8")
-                content = content.replace(b"</row></sheetData>", b"</row>" + rows + b"</sheetData>", 1)
-            if info.filename == "docProps/core.xml":
-                content = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)",
-                                 rb"\g<1>" + iso.encode() + rb"\g<2>", content)
             entry = zipfile.ZipInfo(info.filename, date_time=stamp.timetuple()[:6])
             entry.compress_type = zipfile.ZIP_DEFLATED
             entry.external_attr = 0o600 << 16
-            dst.writestr(entry, content)
-    return out.getvalue()
+            sheet = re.fullmatch(r"xl/worksheets/sheet(\d+)\.xml", info.filename)
+            split = content.find(b"</row></sheetData>") if sheet and bulk and int(sheet.group(1)) in bulk else -1
+            if split < 0:
+                if info.filename == "docProps/core.xml":
+                    content = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)",
+                                     rb"\g<1>" + iso.encode() + rb"\g<2>", content)
+                dst.writestr(entry, content)
+                continue
+            frame, columns, first, stop = bulk[int(sheet.group(1))]
+            split += len(b"</row>")
+            with tempfile.SpooledTemporaryFile(max_size=SPOOL_BYTES) as spool:
+                spool.write(content[:split])
+                for a in range(first, stop, ROWS_PER_PIECE):
+                    part = frame.iloc[a:min(a + ROWS_PER_PIECE, stop)][columns]
+                    for piece in _rows_xml_pieces(part, 2 + a - first):
+                        spool.write(piece)
+                spool.write(content[split:])
+                entry.file_size = spool.tell()
+                spool.seek(0)
+                with dst.open(entry, "w") as out:
+                    shutil.copyfileobj(spool, out, 1 << 20)
