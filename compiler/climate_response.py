@@ -63,7 +63,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import FactorLookupError
-from .factors import VERIFICATION, FactorTableError
+from .factors import FactorTableError, source_and_verification_problems
 from .resources import resource_dir
 from .units import MASS_RATIO_CONVENTIONS, molar_mass
 
@@ -161,12 +161,7 @@ def load_climate_table(parameter_set: str = "ar5", folder: Path | None = None) -
     for col in REQUIRED_TEXT:
         empty = table[table[col].str.strip() == ""]
         problems += [f"{row['gas']} {row['parameter']}: empty {col}" for _, row in empty.iterrows()]
-    unresolved = sorted(set(table["source_id"]) - set(sources["source_id"]))
-    if unresolved:
-        problems.append(f"source_id not in sources.csv: {unresolved}")
-    bad_ver = sorted(set(table["verification"]) - set(VERIFICATION))
-    if bad_ver:
-        problems.append(f"verification must be one of {VERIFICATION}: {bad_ver}")
+    problems += source_and_verification_problems(table, sources)
     if (table["parameter_set"] != parameter_set).any():
         problems.append(f"rows of another parameter set than {parameter_set!r}")
     dup = table[table.duplicated(["gas", "parameter"], keep=False)]
@@ -344,11 +339,7 @@ def agtp(gas: str, horizon, params: ClimateParameters) -> np.ndarray:
     ``AGTP(H) = A sum_i a_i sum_j c_j tau_i / (tau_i - d_j) (exp(-H / tau_i) - exp(-H / d_j))``,
     and ``A a0 sum_j c_j (1 - exp(-H / d_j))`` for the permanent CO2 part (AR5 8.SM.11 [1]_).
     """
-    g, t = _gas(gas, params), _as_years(horizon)
-    return g.efficiency_per_kg * sum(
-        a * c * _temperature_piece(tau, d, t)
-        for a, tau in zip(g.amplitudes, g.timescales)
-        for c, d in zip(params.temperature_sensitivity, params.temperature_timescale))
+    return _two_timescale_sum(gas, horizon, params, _temperature_piece)
 
 
 def integrated_agtp(gas: str, horizon, params: ClimateParameters) -> np.ndarray:
@@ -359,9 +350,14 @@ def integrated_agtp(gas: str, horizon, params: ClimateParameters) -> np.ndarray:
     The time integral of :func:`agtp`, in closed form (each term of
     :func:`agtp` integrated exactly).
     """
+    return _two_timescale_sum(gas, horizon, params, _temperature_piece_integral)
+
+
+def _two_timescale_sum(gas: str, horizon, params: ClimateParameters, piece) -> np.ndarray:
+    """Sum of ``piece(tau_i, d_j, t)`` over the gas's decay modes i and the climate response modes j."""
     g, t = _gas(gas, params), _as_years(horizon)
     return g.efficiency_per_kg * sum(
-        a * c * _temperature_piece_integral(tau, d, t)
+        a * c * piece(tau, d, t)
         for a, tau in zip(g.amplitudes, g.timescales)
         for c, d in zip(params.temperature_sensitivity, params.temperature_timescale))
 

@@ -149,12 +149,7 @@ def _check_register(register: pd.DataFrame, sources: pd.DataFrame) -> pd.DataFra
     bad_units = sorted(set(register["unit"]) - set(CANONICAL_UNITS))
     if bad_units:
         problems.append(f"unit not in the controlled list: {bad_units}")
-    unresolved = sorted(set(register["source_id"]) - set(sources["source_id"]))
-    if unresolved:
-        problems.append(f"source_id not in sources.csv: {unresolved}")
-    bad_ver = sorted(set(register["verification"]) - set(VERIFICATION))
-    if bad_ver:
-        problems.append(f"verification must be one of {VERIFICATION}: {bad_ver}")
+    problems += source_and_verification_problems(register, sources)
     for col in ("value", "ci_low", "ci_high"):
         numbers = pd.to_numeric(register[col].replace("", np.nan), errors="coerce")
         bad = register[(register[col] != "") & numbers.isna()]
@@ -177,6 +172,18 @@ def _check_register(register: pd.DataFrame, sources: pd.DataFrame) -> pd.DataFra
     if problems:
         raise FactorTableError("shipped factor tables are inconsistent:\n" + "\n".join(problems))
     return register
+
+
+def source_and_verification_problems(table: pd.DataFrame, sources: pd.DataFrame) -> list[str]:
+    """Rows of a shipped table whose source_id does not resolve, or whose verification is not allowed."""
+    problems = []
+    unresolved = sorted(set(table["source_id"]) - set(sources["source_id"]))
+    if unresolved:
+        problems.append(f"source_id not in sources.csv: {unresolved}")
+    bad_ver = sorted(set(table["verification"]) - set(VERIFICATION))
+    if bad_ver:
+        problems.append(f"verification must be one of {VERIFICATION}: {bad_ver}")
+    return problems
 
 
 def defaults_for(library: FactorLibrary, factor_set: str, quantity: str) -> pd.DataFrame:
