@@ -3,6 +3,7 @@
 import os
 import subprocess
 import sys
+import sysconfig
 import venv
 from pathlib import Path
 
@@ -18,10 +19,16 @@ def test_wheel_installs_and_runs_demo(tmp_path):
                    capture_output=True, text=True)
     wheel = next(dist.glob("histosol-*.whl"))
     env_dir = tmp_path / "venv"
-    # System site packages hold the dependencies already installed for the tests, so nothing is
-    # downloaded; the wheel's own package in the fresh environment shadows any editable install.
-    venv.EnvBuilder(with_pip=True, system_site_packages=True).create(env_dir)
+    # The dependencies come from the environment running the tests (a path file appends its site-packages
+    # to the new environment's path), so nothing is downloaded. The wheel's own package, installed into the
+    # new environment's site-packages, comes first on the path; path files of the test environment (such as
+    # an editable install of this project) are not processed from an appended directory.
+    venv.EnvBuilder(with_pip=True).create(env_dir)
     python = env_dir / "bin" / "python"
+    site_dir = subprocess.run([str(python), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"],
+                              check=True, capture_output=True, text=True).stdout.strip()
+    outer = {sysconfig.get_paths()["purelib"], sysconfig.get_paths()["platlib"]}
+    (Path(site_dir) / "test-environment.pth").write_text("\n".join(sorted(outer)) + "\n")
     subprocess.run([str(python), "-m", "pip", "install", "--quiet", "--no-deps", str(wheel)], check=True)
     work = tmp_path / "elsewhere"
     work.mkdir()
