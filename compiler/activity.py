@@ -133,6 +133,29 @@ REVIEW_LOG_COLUMNS = [
     Column("response", "text", max_length=MAX_NOTE_CHARS, multiline=True),
     Column("status", "text", True),
 ]
+# Driver series for gap filling (2006 GL Vol. 1 Eqs. 5.1 and 5.2): one row per series and year. The stratum
+# keys say which strata the series fills (blank = any value); method, unit, source and keys are those of the
+# series, so they must be the same on all of its rows.
+SURROGATE_COLUMNS = [
+    Column("series_id", "text", True),
+    Column("method", "text", True),
+    Column("year", "year", True),
+    Column("value", "number", True),
+    Column("unit", "text", True),
+    Column("source", "text", True, max_length=MAX_NOTE_CHARS, multiline=True),
+    Column("region", "text"),
+    Column("climate_zone", "term", False, "climate_zone", blank_is_any=True),
+    Column("land_use", "term", False, "land_use", blank_is_any=True),
+    Column("soil_status", "term", False, "soil_status", blank_is_any=True),
+    Column("nutrient_status", "term", False, "nutrient_status", blank_is_any=True),
+    Column("drainage_depth", "term", False, "drainage_depth", blank_is_any=True),
+    Column("subtype", "term", False, "subtype", blank_is_any=True),
+    Column("remaining_or_converted", "term", False, "remaining_or_converted", blank_is_any=True),
+    Column("note", "text", max_length=MAX_NOTE_CHARS, multiline=True),
+]
+SURROGATE_METHODS = ("overlap", "surrogate")
+SURROGATE_KEYS = ["region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype",
+                  "remaining_or_converted"]
 # Override quantities that cannot be negative (emission factors can: removals, CH4 uptake).
 NON_NEGATIVE = ("fuel_consumption", "ef_fire_co2_c", "ef_fire_ch4", "ef_fire_co", "doc_flux_natural",
                 "delta_doc_drainage", "frac_ditch", "frac_doc_co2")
@@ -491,6 +514,32 @@ def load_review(settings: Settings, log: FindingLog, register_ids: set[str]) -> 
     unknown = frame[~frame["factor_id"].isin(list(register_ids))]
     check.rows("error", "review", "factor_id is not in the factor register", unknown, "factor_id",
                unknown["factor_id"], "an id listed by 'histosol factors'")
+    return frame
+
+
+def load_surrogates(settings: Settings, log: FindingLog) -> pd.DataFrame:
+    """Driver series for the overlap (Eq. 5.1) and surrogate (Eq. 5.2) techniques; empty without the input."""
+    if settings.surrogates is None:
+        return pd.DataFrame()
+    frame, sheet = _load(settings.surrogates, "", SURROGATE_COLUMNS, log, settings)
+    if frame.empty:
+        return frame
+    file = str(settings.surrogates)
+    check = _Checker(log, file, sheet)
+    frame["method"] = frame["method"].map(normalise_text)
+    bad = frame[~frame["method"].isin(SURROGATE_METHODS)]
+    check.rows("error", "surrogates", "unknown method", bad, "method", bad["method"], " | ".join(SURROGATE_METHODS))
+    for column in ("method", "unit", *SURROGATE_KEYS):
+        # A series is one driver for one set of strata: its description may not change from row to row.
+        varies = frame.groupby("series_id")[column].transform("nunique") > 1
+        rows = frame[varies]
+        check.rows("error", "surrogates", f"{column} differs between rows of the same series_id", rows, column,
+                   rows[column], f"one {column} per series_id")
+    dup = frame[frame.duplicated(["series_id", "year"], keep=False)]
+    check.rows("error", "surrogates", "series_id and year given twice", dup, "year", dup["year"],
+               "one value per series and year")
+    frame["year"] = frame["year"].astype("Int64")
+    frame.attrs["file"] = file
     return frame
 
 

@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
-from .activity import load_activity, load_fires, load_overrides, load_review, load_review_log
+from .activity import load_activity, load_fires, load_overrides, load_review, load_review_log, load_surrogates
 from .categories import allocate, category_table
 from .engine import compute
 from .errors import Finding, FindingLog, InputError, QaqcError
@@ -34,6 +34,9 @@ EXPORT_COLUMNS = [
     "parameter_id", "parameter_value", "parameter_unit", "emission_basis", "emission_basis_t", "conversion", "default_factor_id",
     "notation_key", "notation_reason", "equation", "activity_source", "input_file", "input_row",
 ]
+
+GAP_FILL_COLUMNS = ["region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype",
+                    "remaining_or_converted", "previous_land_use", "year", "area_ha", "activity_source", "fill_basis"]
 
 
 @dataclass
@@ -62,6 +65,15 @@ class InventoryResult:
         """Net emissions per year and gas, and CO2-eq over all gases with a GWP [t]."""
         est = self.emissions[self.emissions["notation_key"] == ""]
         return est.pivot_table(index="year", columns="gas", values="emission_t", aggfunc="sum", fill_value=0.0)
+
+    @property
+    def gap_fills(self) -> pd.DataFrame:
+        """Every gap-filled stratum-year: keys, area, technique (activity_source) and how it was made."""
+        act = self.activity
+        if "activity_source" not in act:
+            return pd.DataFrame(columns=GAP_FILL_COLUMNS)
+        filled = act[act["activity_source"] != "reported"]
+        return filled.reindex(columns=GAP_FILL_COLUMNS).sort_values(GAP_FILL_COLUMNS[:10]).reset_index(drop=True)
 
     def write(self, out_dir: str | Path, **options) -> Path:
         """Write every output into ``out_dir`` atomically (see :mod:`compiler.render.outputs`)."""
@@ -101,8 +113,10 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     overrides = load_overrides(settings, log)
     review = load_review(settings, log, set(library.register["factor_id"]))
     review_log = load_review_log(settings, log, set(library.categories["category_code"]))
+    surrogates = load_surrogates(settings, log)
     log.raise_if_errors()
-    activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region)
+    activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region,
+                         surrogates)
     log.raise_if_errors()
 
     engine = compute(activity, fires, overrides, library, settings, log)

@@ -23,7 +23,7 @@ from .units import MASS_RATIO_CONVENTIONS
 FACTOR_SETS = ("ipcc2013ws", "ipcc2006")
 ATTRIBUTE = {"approach": "uncertainty_approach"}  # settings key -> Settings attribute, where they differ
 PATH_KEYS = ("activity", "fires", "overrides", "factor_review", "national_totals", "scenarios",
-             "previous_submission", "review_log")
+             "previous_submission", "review_log", "surrogates")
 GWP_SETS = ("AR5", "AR4", "AR6", "SAR")
 IPCC2006_TEMPERATE = ("cold_temperate", "warm_temperate")
 
@@ -59,6 +59,7 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "scenarios": ((str,), "", None, "scenario definitions (TOML) for 'histosol scenarios'"),
         "previous_submission": ((str,), "", None, "emissions.csv(.gz) of the previous submission, for recalculations"),
         "review_log": ((str,), "", None, "earlier review findings and their status (CSV or XLSX)"),
+        "surrogates": ((str,), "", None, "overlap and surrogate series for gap filling, Eqs. 5.1 and 5.2 (CSV or XLSX)"),
     },
     "uncertainty": {
         "approach": ((str,), "both", ("1", "2", "both"), "Approach 1 (error propagation), 2 (Monte Carlo) or both"),
@@ -114,6 +115,7 @@ class Settings:
     scenarios: Path | None = None
     previous_submission: Path | None = None
     review_log: Path | None = None
+    surrogates: Path | None = None
     uncertainty_approach: str = "both"
     iterations: int = 20000
     seed: int = 20130101
@@ -311,7 +313,7 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         overrides=paths["overrides"], factor_review=paths["factor_review"],
         national_totals=paths["national_totals"], scenarios=paths["scenarios"],
         previous_submission=paths["previous_submission"], review_log=paths["review_log"],
-        uncertainty_approach=values["approach"], iterations=values["iterations"], seed=values["seed"],
+        surrogates=paths["surrogates"], uncertainty_approach=values["approach"], iterations=values["iterations"], seed=values["seed"],
         correlate_activity_across_years=values["correlate_activity_across_years"],
         default_area_pct=float(values["default_area_pct"]),
         fill=values["fill"], trend_years=values["trend_years"],

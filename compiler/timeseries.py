@@ -84,8 +84,11 @@ def surrogate_scale(y_t, s_t, s_target):
 # --- applying them to the activity table ------------------------------------------
 
 def _matrix_extrapolate(known: np.ndarray, years: np.ndarray, fill_mask: np.ndarray, n_years: int,
-                        side: str) -> np.ndarray:
-    """Per row: least-squares line through the n known values nearest one end; evaluated where fill_mask."""
+                        side: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per row: least-squares line through the n known values nearest one end; evaluated where fill_mask.
+
+    Returns the values and, per row, the first and last year of the points the line went through.
+    """
     out = np.full(known.shape, np.nan)
     present = ~np.isnan(known)
     order = np.cumsum(present[:, ::-1], axis=1)[:, ::-1] if side == "end" else np.cumsum(present, axis=1)
@@ -101,14 +104,149 @@ def _matrix_extrapolate(known: np.ndarray, years: np.ndarray, fill_mask: np.ndar
         intercept = np.where(n > 0, (sy - slope * sx) / np.maximum(n, 1), np.nan)
     line = intercept[:, None] + slope[:, None] * years[None, :]
     out[fill_mask] = line[fill_mask]
-    return out
+    used_first = np.where(use, years[None, :], np.inf).min(axis=1)
+    used_last = np.where(use, years[None, :], -np.inf).max(axis=1)
+    return out, used_first, used_last
+
+
+def _nearest_known(present: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per cell, the column of the nearest known value before it (-1 if none) and after it (width if none)."""
+    width = present.shape[1]
+    col = np.arange(width)
+    before = np.maximum.accumulate(np.where(present, col[None, :], -1), axis=1)
+    after = np.minimum.accumulate(np.where(present, col[None, :], width)[:, ::-1], axis=1)[:, ::-1]
+    return before, after
+
+
+def _describe_strata(table: pd.DataFrame, rows) -> str:
+    return "; ".join(", ".join(str(v) for v in table.index[i] if v) for i in rows)
+
+
+def _series_fill(table: pd.DataFrame, known: np.ndarray, gaps: np.ndarray, years: np.ndarray,
+                 series: pd.DataFrame, log: FindingLog):
+    """Fill gap cells from driver series: overlap (Eq. 5.1) or surrogate (Eq. 5.2).
+
+    Each stratum takes the most specific series whose keys match it (blank = any); two equally specific
+    series for one stratum are an error. A series fills the stratum's gap cells in the years it gives a value
+    for; its other gap cells are left to interpolation or extrapolation.
+
+    Returns (mask of filled cells, values, method per cell, basis text per cell).
+    """
+    from .activity import SURROGATE_KEYS
+
+    file = series.attrs.get("file", "")
+    n_rows, width = known.shape
+    present = ~np.isnan(known)
+    mask = np.zeros(known.shape, dtype=bool)
+    values = np.full(known.shape, np.nan)
+    method = np.full(known.shape, "", dtype=object)
+    basis = np.full(known.shape, "", dtype=object)
+    strata = table.index.to_frame(index=False)
+    specs = series.groupby("series_id", sort=True).first()
+    level = (specs[SURROGATE_KEYS] != "").sum(axis=1).sort_values(ascending=False, kind="stable")
+    owner = np.full(n_rows, -1)
+    owner_level = np.full(n_rows, -1)
+    names = list(level.index)
+    for k, sid in enumerate(names):
+        spec = specs.loc[sid]
+        match = np.ones(n_rows, dtype=bool)
+        for key in SURROGATE_KEYS:
+            if spec[key] != "":
+                match &= (strata[key] == spec[key]).to_numpy()
+        if not match.any():
+            log.add("warning", "surrogates", f"series {sid} matches no stratum of the activity data", file=file,
+                    column="series_id", found=sid, expected="stratum keys (region, land_use, ...) of strata to fill")
+            continue
+        tie = match & (owner >= 0) & (owner_level == level[sid])
+        if tie.any():
+            rows = np.nonzero(tie)[0]
+            log.add("error", "surrogates", f"series {names[owner[rows[0]]]} and {sid} match the same strata "
+                    f"equally specifically ({_describe_strata(table, rows[:3])})", file=file, column="series_id",
+                    found=sid, expected="one series per stratum: give the series different stratum keys")
+        take = match & (owner < 0)
+        owner[take], owner_level[take] = k, level[sid]
+    years_index = pd.Index(years)
+    for k, sid in enumerate(names):
+        rows = np.nonzero(owner == k)[0]
+        if rows.size == 0:
+            continue
+        spec = specs.loc[sid]
+        part = series[series["series_id"] == sid]
+        driver = np.full(width, np.nan)
+        at = years_index.get_indexer(part["year"].astype(int))
+        driver[at[at >= 0]] = part["value"].to_numpy(dtype=float)[at >= 0]
+        y = known[rows]
+        have = present[rows]
+        target = gaps[rows] & ~np.isnan(driver)[None, :]
+        if not target.any():
+            log.add("info", "surrogates", f"series {sid} gives no value in a missing year of the strata it matches",
+                    file=file, column="year", found=sid)
+            continue
+        label = f"{sid} ({spec['unit']})"
+        if spec["method"] == "overlap":
+            both = have & ~np.isnan(driver)[None, :]
+            sum_y = np.where(both, y, 0.0).sum(axis=1)
+            sum_x = np.where(both, driver[None, :], 0.0).sum(axis=1)
+            usable = both.any(axis=1) & (sum_x > 0)
+            lacking = target.any(axis=1) & ~usable
+            if lacking.any():
+                log.add("error", "surrogates", f"series {sid} shares no year with a reported area of "
+                        f"{_describe_strata(table, rows[lacking][:3])} (Eq. 5.1 scales by the overlap years)",
+                        file=file, column="year", found=sid,
+                        expected="driver values in some years where the stratum's area is reported, not all zero")
+            target &= usable[:, None]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                ratio = sum_y / sum_x
+            fill = driver[None, :] * ratio[:, None]
+            first = np.where(both, years[None, :], years.max() + 1).min(axis=1)
+            last = np.where(both, years[None, :], years.min() - 1).max(axis=1)
+            count = both.sum(axis=1)
+            text = np.array([f"Eq. 5.1 overlap with {label}: ratio {r:.6g} over {n} years {a}-{b}"
+                             if u else "" for r, n, a, b, u in zip(ratio, count, first, last, usable)], dtype=object)
+            cell_text = np.broadcast_to(text[:, None], target.shape)
+        else:
+            ref = have & (driver > 0)[None, :]
+            before, after = _nearest_known(ref)
+            col = np.arange(width)[None, :]
+            dist_before = np.where(before >= 0, col - before, width + 1)
+            dist_after = np.where(after < width, after - col, width + 1)
+            pick = np.where(dist_after <= dist_before, after, before)  # the nearer; the later one on a tie
+            usable_cell = (dist_before <= width) | (dist_after <= width)
+            lacking = (target & ~usable_cell).any(axis=1)
+            if lacking.any():
+                log.add("error", "surrogates", f"series {sid} has no positive value in a year with a reported area "
+                        f"of {_describe_strata(table, rows[lacking][:3])} (Eq. 5.2 scales from such a year)",
+                        file=file, column="value", found=sid,
+                        expected="a driver value above zero in some year where the stratum's area is reported")
+            target &= usable_cell
+            safe = np.clip(pick, 0, width - 1)
+            y_t = np.take_along_axis(y, safe, axis=1)
+            s_t = driver[safe]
+            fill = y_t * driver[None, :] / np.where(s_t > 0, s_t, np.nan)
+            cell_text = np.full(target.shape, "", dtype=object)
+            r_i, c_i = np.nonzero(target)
+            cell_text[r_i, c_i] = [f"Eq. 5.2 surrogate {label}: {y_t[a, b]:.6g} ha in {years[safe[a, b]]} x "
+                                   f"{driver[b]:.6g} / {s_t[a, b]:.6g}" for a, b in zip(r_i, c_i)]
+        r_i, c_i = np.nonzero(target)
+        mask[rows[r_i], c_i] = True
+        values[rows[r_i], c_i] = fill[r_i, c_i]
+        method[rows[r_i], c_i] = spec["method"]
+        basis[rows[r_i], c_i] = cell_text[r_i, c_i]
+    return mask, values, method, basis
 
 
 def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: FindingLog,
-              mode_by_region: dict[str, str] | None = None) -> pd.DataFrame:
-    """Return the activity table with gaps filled (or errors logged), with ``activity_source`` per row."""
+              mode_by_region: dict[str, str] | None = None, surrogates: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Return the activity table with gaps filled (or errors logged), with ``activity_source`` per row.
+
+    Filled rows also carry ``fill_basis``: how the value was made (the years interpolated between, the
+    years of the trend, or the series, ratio and years of Eq. 5.1 / Eq. 5.2). Driver series in
+    ``surrogates`` (see :func:`compiler.activity.load_surrogates`) fill the gaps of the strata they
+    match first, whatever the fill mode; the remaining gaps follow ``mode``.
+    """
     activity = activity.copy()
     activity["activity_source"] = "reported"
+    activity["fill_basis"] = ""
     good = activity[~activity["_bad"]] if "_bad" in activity else activity
     if good.empty:
         return activity
@@ -139,6 +277,12 @@ def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: Findi
     after = (col[None, :] > last[:, None]) & (last == region_last)[:, None] & ~region_has[region_row]
     before = (col[None, :] < first[:, None]) & (first == region_first)[:, None] & ~region_has[region_row]
 
+    by_series = np.zeros(known.shape, dtype=bool)
+    if surrogates is not None and not surrogates.empty:
+        by_series, series_values, series_method, series_basis = _series_fill(
+            table, known, inside | after | before, years, surrogates, log)
+        inside, after, before = inside & ~by_series, after & ~by_series, before & ~by_series
+
     modes = regions.map(lambda r: mode_by_region.get(r, mode)).to_numpy()
     can_interp = np.isin(modes, ["interpolate", "both"])[:, None]
     can_extrap = np.isin(modes, ["extrapolate", "both"])[:, None]
@@ -147,31 +291,46 @@ def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: Findi
     _report_unfilled(table, (after | before) & ~can_extrap, years, "extrapolate", file, log)
 
     filled = known.copy()
+    basis = np.full(known.shape, "", dtype=object)
+    source = np.full(known.shape, "", dtype=object)
     interp = inside & can_interp
     if interp.any():
         frame = pd.DataFrame(known, columns=years).interpolate(axis=1, limit_area="inside")
         filled[interp] = frame.to_numpy()[interp]
-    extrap_end = after & can_extrap
-    extrap_start = before & can_extrap
-    if extrap_end.any():
-        filled[extrap_end] = _matrix_extrapolate(known, years.astype(float), extrap_end, n_years, "end")[extrap_end]
-    if extrap_start.any():
-        filled[extrap_start] = _matrix_extrapolate(known, years.astype(float), extrap_start, n_years,
-                                                   "start")[extrap_start]
-    negative = (extrap_end | extrap_start) & (filled < 0)
+        prev, nxt = _nearest_known(present)
+        r_i, c_i = np.nonzero(interp)
+        basis[r_i, c_i] = [f"linear interpolation between {years[prev[a, b]]} and {years[nxt[a, b]]}"
+                           for a, b in zip(r_i, c_i)]
+        source[interp] = "interpolated"
+    for side, cells in (("end", after & can_extrap), ("start", before & can_extrap)):
+        if not cells.any():
+            continue
+        values, lo, hi = _matrix_extrapolate(known, years.astype(float), cells, n_years, side)
+        filled[cells] = values[cells]
+        r_i = np.nonzero(cells)[0]
+        basis[cells] = [f"linear trend of the reported years {lo[a]:.0f}-{hi[a]:.0f}" for a in r_i]
+        source[cells] = "extrapolated"
+    extrapolated = source == "extrapolated"
+    negative = extrapolated & (filled < 0)
     filled[negative] = 0.0
     if negative.any():
+        basis[negative] = basis[negative] + ", below zero and set to zero"
         log.add("info", "timeseries", f"{int(negative.sum())} extrapolated areas fell below zero and were set to zero",
                 file=file)
+    if by_series.any():
+        filled[by_series] = series_values[by_series]
+        basis[by_series] = series_basis[by_series]
+        source[by_series] = series_method[by_series]
 
-    new = interp | extrap_end | extrap_start
+    new = source != ""
     if not new.any():
         return activity
     r, c = np.nonzero(new)
     keys = table.index.to_frame(index=False).iloc[r].reset_index(drop=True)
     keys["year"] = years[c]
     keys["area_ha"] = filled[r, c]
-    keys["activity_source"] = np.where(interp[r, c], "interpolated", "extrapolated")
+    keys["activity_source"] = source[r, c]
+    keys["fill_basis"] = basis[r, c]
     # Other columns from the nearest reported row of the same stratum.
     donor_cols = [c_ for c_ in ("ditch_fraction", "area_uncertainty_pct") if c_ in good]
     nearest = good.astype({"year": "int64"}).sort_values("year")
@@ -184,8 +343,8 @@ def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: Findi
         if col_name not in keys:
             keys[col_name] = "" if activity[col_name].dtype == object else np.nan
     counts = keys["activity_source"].value_counts()
-    for source, count in counts.items():
-        log.add("info", "timeseries", f"{count} stratum-years {source} ({', '.join(sorted(set(keys.loc[keys['activity_source'] == source, 'region'])))})",
+    for how, count in counts.items():
+        log.add("info", "timeseries", f"{count} stratum-years {how} ({', '.join(sorted(set(keys.loc[keys['activity_source'] == how, 'region'])))})",
                 file=file)
     out = pd.concat([activity, keys[activity.columns.tolist() + ["_donor_row"]]], ignore_index=True)
     out.attrs = activity.attrs

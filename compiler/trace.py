@@ -25,7 +25,24 @@ def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:
                             na_values={c: [""] for c in ("emission_t", "co2eq_t", "factor_value", "parameter_value",
                                                          "area_basis_ha", "conversion", "emission_basis_t")})
     factors = pd.read_csv(files["factors.csv"], keep_default_na=False)
+    fills = folder / "gap_filling.csv"  # how each gap-filled area was made (older output folders lack it)
+    if fills.is_file():
+        emissions.attrs["gap_filling"] = pd.read_csv(fills, keep_default_na=False)
     return emissions, factors
+
+
+FILL_KEYS = ["year", "region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth",
+             "subtype", "remaining_or_converted", "previous_land_use"]
+
+
+def _fill_basis(emissions: pd.DataFrame, row) -> str:
+    fills = emissions.attrs.get("gap_filling")
+    if fills is None or fills.empty:
+        return ""
+    hit = fills
+    for key in FILL_KEYS:
+        hit = hit[hit[key].astype(str) == str(row[key])]
+    return str(hit["fill_basis"].iloc[0]) if len(hit) else ""
 
 
 def trace_rows(emissions: pd.DataFrame, category: str, gas: str, year: int, region: str | None = None) -> pd.DataFrame:
@@ -62,7 +79,11 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
         stratum = ", ".join(x for x in (r["region"], r["climate_zone"], r["land_use"], r["soil_status"],
                                         r["nutrient_status"], r["drainage_depth"], r["subtype"],
                                         r["remaining_or_converted"], r["fire_type"]) if x)
-        src = f"{r['input_file']} row {r['input_row']}" if r["input_row"] else f"{r['activity_source']} (gap filled)"
+        if r["input_row"]:
+            src = f"{r['input_file']} row {r['input_row']}"
+        else:
+            basis = _fill_basis(emissions, r)
+            src = f"{r['activity_source']} (gap filled{': ' + basis if basis else ''})"
         lines.append(f"[{i}] {r['pathway']}: {stratum}; {src}")
         lines.append(f"    area {_fmt(r['area_ha'])} ha" + (f"; area the factor applies to {_fmt(r['area_basis_ha'])} ha"
                                                              if r["area_basis_ha"] != r["area_ha"] and not r["pathway"].startswith("fire") else ""))

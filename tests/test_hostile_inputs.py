@@ -303,6 +303,19 @@ CASES = [
      "overrides.csv, row 2, column first_year: first_year outside 1900 to 2200; found '1800'; expected 1900 to 2200"),
     ("review log year 1e20", lambda f: demo(f, "review_log.csv", "R-2021-03,2021,", "R-2021-03,1e20,"),
      "review_log.csv, row 2, column year_raised: year_raised outside 1900 to 2200; found '1e20'"),
+    # driver series for gap filling
+    ("series value as word", lambda f: demo(f, "surrogates.csv", "overlap,1990,1613,", "overlap,1990,lots,"),
+     "surrogates.csv, row 2, column value: value is not a number; found 'lots'"),
+    ("series method unknown", lambda f: demo(f, "surrogates.csv", "overlap,1990,", "splice,1990,"),
+     "surrogates.csv, row 2, column method: unknown method; found 'splice'; expected overlap | surrogate"),
+    ("series year twice", lambda f: demo(f, "surrogates.csv", "overlap,1991,", "overlap,1990,"),
+     "surrogates.csv, row 2, column year: series_id and year given twice; found '1990'"),
+    ("series region changes", lambda f: demo(f, "surrogates.csv", "(invented)\",Skarrowdale,cropland",
+                                             "(invented)\",Vennmarsh,cropland"),
+     "surrogates.csv, row 2, column region: region differs between rows of the same series_id; found 'Vennmarsh'"),
+    ("series missing column", lambda f: demo(f, "surrogates.csv", "series_id,method,", "series,method,"),
+     "surrogates.csv, column series_id: required column missing; found 'series, method, year, value, unit, source, "
+     "region, land_use'; expected columns series_id, method, year, value, unit, source"),
     # duplicated and conflicting rows
     ("duplicated row", lambda f: small(f, text=csv_text(ROW, ROW)),
      "activity.csv, row 2, column year: the same year, region and stratum appear in more than one row; found "

@@ -38,7 +38,7 @@ def test_emissions_csv_has_the_documented_columns(demo_output):
 def test_workbook_sheets_and_summary_equal_the_tables(demo_output, demo_result):
     wb = openpyxl.load_workbook(demo_output / "inventory.xlsx")
     assert wb.sheetnames == ["summary", "categories", "categories_long", "strata", "trace", "recalculations",
-                             "review_log", "uncertainty_approach1", "uncertainty_total", "uncertainty_trend",
+                             "gap_filling", "review_log", "uncertainty_approach1", "uncertainty_total", "uncertainty_trend",
                              "monte_carlo", "monte_carlo_trend", "distributions", "convergence", "key_categories",
                              "factors", "findings", "settings"]
     ws = wb["summary"]
@@ -82,7 +82,7 @@ def test_manifest(demo_output, demo_result):
     m = json.loads((demo_output / "manifest.json").read_text())
     assert m["tool"] == "histosol" and m["settings"]["method.gwp"] == "AR5"
     assert set(m["inputs_sha256"]) == {"activity", "fires", "overrides", "factor_review", "previous_submission",
-                                       "review_log", "scenarios"}
+                                       "review_log", "scenarios", "surrogates"}
     assert "drained_ipcc2013ws.csv" in m["factor_tables_sha256"]
     assert m["area_ha_by_year"]["2024"] == pytest.approx(demo_result.activity.query("year == 2024")["area_ha"].sum())
     assert m["outputs_sha256"]["emissions.csv"] == sha(demo_output / "emissions.csv")
@@ -92,7 +92,7 @@ def test_two_compiles_are_byte_identical(tmp_path, demo_result):
     a, b = tmp_path / "a", tmp_path / "b"
     demo_result.write(a, report=False)
     compile_inventory(demo_result.settings).write(b, report=False)
-    for name in ("emissions.csv", "datapackage.json", "inventory.xlsx", "manifest.json"):
+    for name in ("emissions.csv", "gap_filling.csv", "datapackage.json", "inventory.xlsx", "manifest.json"):
         assert sha(a / name) == sha(b / name), name
 
 

@@ -79,4 +79,111 @@ def test_a_stratum_that_ends_is_not_extrapolated(tmp_path):
 
 
 def test_demo_exercises_gap_filling(demo_result):
-    assert {"interpolated", "extrapolated"} <= set(demo_result.emissions["activity_source"])
+    assert {"interpolated", "extrapolated", "overlap", "surrogate"} <= set(demo_result.emissions["activity_source"])
+    fills = demo_result.gap_fills
+    assert (fills["fill_basis"] != "").all() and set(fills["activity_source"]) == {"interpolated", "extrapolated",
+                                                                                    "overlap", "surrogate"}
+
+
+def test_gap_filling_table_is_written_and_the_trace_names_the_basis(demo_output):
+    from compiler.trace import load_outputs, trace_text
+
+    fills = pd.read_csv(demo_output / "gap_filling.csv", keep_default_na=False)
+    assert set(fills["activity_source"]) == {"interpolated", "extrapolated", "overlap", "surrogate"}
+    emissions, factors = load_outputs(demo_output)
+    text, _ = trace_text(emissions, factors, "3.B.2.a", "CO2", 1990, "Skarrowdale")
+    assert "overlap (gap filled: Eq. 5.1 overlap with SKD-census-tilled" in text
+
+
+# --- overlap and surrogate series from [inputs] surrogates --------------------------------------------------
+
+SERIES_HEADER = "series_id,method,year,value,unit,source,region,land_use\n"
+
+
+def _with_series(tmp_path, areas: dict, series_csv: str, first: int, last: int, fill: str = "none"):
+    rows = [stratum(year=y, area_ha=a) for y, a in areas.items()]
+    settings = write_inventory(tmp_path, rows, first=first, last=last, extra_inputs={"surrogates": "surrogates.csv"})
+    settings.write_text(settings.read_text().replace("[inputs]", f'[timeseries]\nfill = "{fill}"\n[inputs]'))
+    (tmp_path / "surrogates.csv").write_text(SERIES_HEADER + series_csv, encoding="utf-8")
+    return settings
+
+
+def _areas(result):
+    onsite = result.emissions[result.emissions["pathway"] == "co2_onsite"].set_index("year")
+    return onsite["area_ha"], onsite["activity_source"]
+
+
+def test_overlap_series_reproduces_eq_5_1_in_a_compile(tmp_path):
+    # 2006 GL Vol. 1 Eq. 5.1 on a small worked case: the stratum is reported 2013-2015 (50, 55, 60 ha); an older
+    # census gives 80, 85, 90 for 2010-2012 and 100, 110, 120 for the overlap years 2013-2015, so the ratio is
+    # (50 + 55 + 60) / (100 + 110 + 120) = 0.5 and the filled areas are 40, 42.5 and 45 ha (by hand).
+    series = "".join(f"census,overlap,{y},{v},ha in the census,Testvale census tables,Testvale,cropland\n"
+                     for y, v in zip(range(2010, 2016), (80, 85, 90, 100, 110, 120)))
+    settings = _with_series(tmp_path, {2013: 50.0, 2014: 55.0, 2015: 60.0}, series, 2010, 2015)
+    result = compile_inventory(settings)  # fill = "none": the series covers every missing year, so no error
+    area, source = _areas(result)
+    assert area.loc[[2010, 2011, 2012]].tolist() == pytest.approx([40.0, 42.5, 45.0])
+    assert (source.loc[[2010, 2011, 2012]] == "overlap").all() and (source.loc[[2013, 2014, 2015]] == "reported").all()
+    basis = result.activity.set_index("year").loc[2010, "fill_basis"]
+    assert "Eq. 5.1" in basis and "ratio 0.5 over 3 years 2013-2015" in basis
+
+
+def test_surrogate_series_reproduces_eq_5_2_in_a_compile(tmp_path):
+    # 2006 GL Vol. 1 Eq. 5.2, y0 = y_t * s0 / s_t, from the nearest reported year with a driver value (by hand):
+    # 2011 is nearest 2010 (100 ha, s = 50): 100 * 55 / 50 = 110 ha; 2012 is nearest 2013 (130 ha, s = 65):
+    # 130 * 60 / 65 = 120 ha.
+    series = "".join(f"livestock,surrogate,{y},{v},grazing livestock units,Testvale farm register,,\n"
+                     for y, v in ((2010, 50), (2011, 55), (2012, 60), (2013, 65)))
+    settings = _with_series(tmp_path, {2010: 100.0, 2013: 130.0}, series, 2010, 2013)
+    area, source = _areas(compile_inventory(settings))
+    assert area.loc[[2011, 2012]].tolist() == pytest.approx([110.0, 120.0])
+    assert (source.loc[[2011, 2012]] == "surrogate").all()
+
+
+def test_years_a_series_does_not_cover_follow_the_fill_mode(tmp_path):
+    series = "livestock,surrogate,2010,50,units,register,,\nlivestock,surrogate,2011,55,units,register,,\n"
+    settings = _with_series(tmp_path, {2010: 100.0, 2013: 130.0}, series, 2010, 2013)
+    with pytest.raises(InputError) as err:  # fill = "none": 2012 has no driver value, so it is still a gap
+        compile_inventory(settings)
+    assert "missing years 2012 for stratum" in str(err.value)
+    settings = _with_series(tmp_path, {2010: 100.0, 2013: 130.0}, series, 2010, 2013, fill="interpolate")
+    area, source = _areas(compile_inventory(settings))
+    assert source.loc[2011] == "surrogate" and source.loc[2012] == "interpolated"
+    assert area.loc[2012] == pytest.approx(120.0)  # linear between 100 (2010) and 130 (2013), by hand
+
+
+def test_a_series_does_not_extend_a_stratum_that_ended(tmp_path):
+    # The region reports 2013 through another stratum, so cropland last seen in 2012 has ended; a series that
+    # matches it fills only gaps, never years outside a stratum's span while its region reports.
+    rows = [stratum(year=y, area_ha=10.0) for y in (2010, 2011, 2012)]
+    rows += [stratum(year=y, land_use="grassland", nutrient_status="poor", area_ha=5.0) for y in range(2010, 2014)]
+    settings = write_inventory(tmp_path, rows, first=2010, last=2013, extra_inputs={"surrogates": "surrogates.csv"})
+    (tmp_path / "surrogates.csv").write_text(
+        SERIES_HEADER + "".join(f"s,surrogate,{y},{y - 2000},u,src,,cropland\n" for y in range(2010, 2014)))
+    result = compile_inventory(settings)
+    crop = result.emissions[(result.emissions["pathway"] == "co2_onsite") & (result.emissions["land_use"] == "cropland")]
+    assert sorted(crop["year"]) == [2010, 2011, 2012]
+    assert any("gives no value in a missing year" in f.message for f in result.finding_list)
+
+
+@pytest.mark.parametrize("series, message", [
+    ("s,splice,2011,5,u,src,,\n", "unknown method"),
+    ("s,overlap,2011,5,u,src,,\ns,surrogate,2012,5,u,src,,\n", "method differs between rows of the same series_id"),
+    ("s,overlap,2011,5,u,src,,\ns,overlap,2011,6,u,src,,\n", "series_id and year given twice"),
+    ("a,overlap,2011,5,u,src,Testvale,\nb,surrogate,2011,5,u,src,,cropland\n", "match the same strata equally"),
+    ("s,overlap,2011,5,u,src,,\ns,overlap,2012,5,u,src,,\n", "shares no year with a reported area"),
+    ("s,surrogate,2011,5,u,src,,\ns,surrogate,2010,0,u,src,,\n", "has no positive value in a year with a reported"),
+    ("s,overlap,2011,-5,u,src,,\n", "value is negative"),
+])
+def test_bad_series_are_input_errors(tmp_path, series, message):
+    settings = _with_series(tmp_path, {2010: 100.0, 2013: 130.0}, series, 2010, 2013, fill="interpolate")
+    with pytest.raises(InputError) as err:
+        compile_inventory(settings)
+    assert message in str(err.value)
+    assert "surrogates.csv" in str(err.value)
+
+
+def test_a_series_matching_no_stratum_is_a_warning(tmp_path):
+    settings = _with_series(tmp_path, {2010: 100.0, 2011: 110.0}, "s,overlap,2011,5,u,src,Elsewhere,\n", 2010, 2011)
+    result = compile_inventory(settings)
+    assert any(f.severity == "warning" and "matches no stratum" in f.message for f in result.finding_list)

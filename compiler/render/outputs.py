@@ -31,6 +31,7 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
 
         write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv")
         write_factors_csv(result.factors_used, tmp / "factors.csv")
+        write_emissions_csv(result.gap_fills, tmp / "gap_filling.csv")
         write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__), tmp / "datapackage.json")
         write_workbook(result, tmp / "inventory.xlsx")
         if report or archive:

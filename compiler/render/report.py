@@ -246,8 +246,39 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         "references": _references(result),
         "settings_table": s.as_table(), "recalc": recalc, "review": review,
         "uncertainty": uncertainty, "keycat": keycat, "qaqc_checks": _qaqc_checks(),
-        "glossary": GLOSSARY,
+        "glossary": GLOSSARY, "gap_fills": _gap_fill_context(result),
     }
+
+
+def _year_ranges(years) -> str:
+    """2001, 2002, 2003, 2007 -> '2001-2003, 2007'."""
+    years = sorted(int(y) for y in years)
+    runs, start = [], years[0]
+    for prev, year in zip(years, years[1:] + [None]):
+        if year is None or year != prev + 1:
+            runs.append(str(start) if start == prev else f"{start}\u2013{prev}")
+            start = year
+    return ", ".join(runs)
+
+
+def _gap_fill_context(result) -> list[dict]:
+    """One line per stratum, technique and basis: which years were filled and how."""
+    fills = result.gap_fills
+    if fills.empty:
+        return []
+    keys = ["region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype",
+            "remaining_or_converted", "previous_land_use"]
+    # Years of one gap share the basis text except for Eq. 5.2, which names each year's driver value: group
+    # those by series instead.
+    fills = fills.assign(_basis=np.where(fills["activity_source"] == "surrogate",
+                                         fills["fill_basis"].str.split(":").str[0] + ": y_t x s_0 / s_t from the "
+                                         "nearest reported year", fills["fill_basis"]))
+    out = []
+    for group, g in fills.groupby(keys + ["activity_source", "_basis"], sort=True):
+        stratum = ", ".join(v for v in group[:len(keys)] if v)
+        out.append({"stratum": stratum, "source": group[len(keys)], "years": _year_ranges(g["year"]),
+                    "basis": group[-1], "area": _fmt(g["area_ha"].sum() / len(g))})
+    return out
 
 
 def _merge_reasons(reasons: pd.Series) -> str:

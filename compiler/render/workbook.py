@@ -189,6 +189,14 @@ def write_workbook(result, path: Path) -> None:
                       "difference_co2eq_t.",
                       f"Trend {base}-latest common year: previous {result.recalculation['previous_trend_pct']:.2f} %, "
                       f"current {result.recalculation['current_trend_pct']:.2f} %."])
+    fills = result.gap_fills
+    if not fills.empty:
+        _sheet(wb, "gap_filling", list(fills.columns), _records(fills, list(fills.columns)),
+               {"area_ha": FORMATS["ha"], "year": FORMATS["int"]}, {"fill_basis": 70},
+               notes=[f"{len(fills)} stratum-years not in the activity data, filled by the techniques of 2006 IPCC "
+                      "Guidelines Vol. 1 Ch. 5: linear interpolation, trend extrapolation, overlap (Eq. 5.1) or "
+                      "surrogate (Eq. 5.2). In the strata sheet these rows have activity_source as here and "
+                      "input_row 0."])
     if result.review_log is not None and not result.review_log.empty:
         rl = result.review_log.drop(columns=[c for c in ("_row", "_bad") if c in result.review_log])
         _sheet(wb, "review_log", list(rl.columns), _records(rl, list(rl.columns)), widths={"finding": 60,
