@@ -240,7 +240,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         "cautions": CAUTIONS, "unverified": sorted(unverified_used["factor_id"]),
         "rows": rows, "never": never, "notation_keys": NOTATION_KEYS,
         "charts": chart_svgs if chart_svgs is not None else charts.all_charts(result),
-        "findings": findings.to_dict("records"),
+        "findings": _findings_context(findings), "findings_total": len(findings),
         "methods": methods, "conversions": [(n, f"{v:.5f}") for n, v in conversions],
         "gwp": sorted(gwp.items()), "allocation": allocation, "register": factor_sources,
         "references": _references(result),
@@ -248,6 +248,23 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         "uncertainty": uncertainty, "keycat": keycat, "qaqc_checks": _qaqc_checks(),
         "glossary": GLOSSARY, "gap_fills": _gap_fill_context(result),
     }
+
+
+FINDINGS_SHOWN = 3  # per check and severity in the report; the workbook's findings sheet has every one
+SEVERITY_ORDER = {"error": 0, "warning": 1, "info": 2}
+
+
+def _findings_context(findings: pd.DataFrame) -> list[dict]:
+    """Findings grouped by severity and check: the first few of each, then how many more."""
+    if findings.empty:
+        return []
+    order = findings.assign(_sev=findings["severity"].map(SEVERITY_ORDER).fillna(3))
+    out = []
+    for (_, check), group in order.groupby(["_sev", "check"], sort=True):
+        records = group.drop(columns="_sev").to_dict("records")
+        out.append({"severity": records[0]["severity"], "check": check, "count": len(records),
+                    "shown": records[:FINDINGS_SHOWN], "more": max(len(records) - FINDINGS_SHOWN, 0)})
+    return out
 
 
 def _year_ranges(years) -> str:
