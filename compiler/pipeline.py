@@ -63,7 +63,8 @@ class InventoryResult:
     @property
     def totals(self) -> pd.DataFrame:
         """Net emissions per year and gas, and CO2-eq over all gases with a GWP [t]."""
-        est = self.emissions[self.emissions["notation_key"] == ""]
+        em = self.emissions
+        est = em.loc[(em["notation_key"] == "").to_numpy(dtype=bool), ["year", "gas", "emission_t"]]
         return est.pivot_table(index="year", columns="gas", values="emission_t", aggfunc="sum", fill_value=0.0)
 
     @property

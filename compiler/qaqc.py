@@ -313,12 +313,18 @@ def _first_rows(activity: pd.DataFrame, keys: list[str]) -> pd.Series:
     return activity[activity["_row"] > 0].groupby(keys + ["year"])["_row"].min()
 
 
-def _row_at(rows: pd.Series, key: tuple, year: int, fallback_year: int) -> int | None:
-    for y in (year, fallback_year):
-        hit = rows.get(key + (y,))
-        if hit is not None and not pd.isna(hit):
-            return int(hit)
-    return None
+def _rows_at(rows: pd.Series, keys: pd.Index, years: np.ndarray) -> list[int | None]:
+    """:func:`_row_at` for many flagged cells at once: one reindex for the year, one for the year before."""
+    if len(keys) == 0:
+        return []
+    tuples = [k if isinstance(k, tuple) else (k,) for k in keys]
+    out = np.full(len(tuples), np.nan)
+    for shift in (1, 0):  # the year before first, then the year itself overwrites where it has a row
+        index = pd.MultiIndex.from_tuples([t + (int(y) - shift,) for t, y in zip(tuples, years)],
+                                          names=rows.index.names)
+        hit = rows.reindex(index).to_numpy(dtype=float)
+        out = np.where(np.isnan(hit), out, hit)
+    return [None if np.isnan(v) else int(v) for v in out]
 
 
 def _newly_converted(activity: pd.DataFrame, years) -> pd.DataFrame:
@@ -359,20 +365,23 @@ def check_area_balance(result, thresholds: QaqcThresholds) -> list[Finding]:
     flagged = (change.abs() > allowed + 1e-9) & prev.notna()
     rows = _first_rows(act, ["region"])
     where = _activity_where(result)
+    i, j = np.nonzero(flagged.to_numpy())  # flagged region-years only
+    regions, years_j = flagged.index[i], np.asarray(flagged.columns)[j]
+    before_a, after_a = prev.to_numpy()[i, j], total.to_numpy()[i, j]
+    new_a, allowed_a = new.to_numpy()[i, j], allowed.to_numpy()[i, j]
     out = []
-    for i, j in zip(*np.nonzero(flagged.to_numpy())):  # flagged region-years only
-        region, year = flagged.index[i], flagged.columns[j]
-        before, after = prev.at[region, year], total.at[region, year]
+    for region, year, before, after, newly, limit, row in zip(regions, years_j, before_a, after_a, new_a, allowed_a,
+                                                              _rows_at(rows, regions, years_j)):
         word = "grows" if after > before else "shrinks"
         out.append(Finding(
             "warning", "area_balance",
             f"total organic-soil area of {region} {word} from {before:,.1f} ha in {year - 1} to {after:,.1f} ha in "
-            f"{year} ({after - before:+,.1f} ha) with {new.at[region, year]:,.1f} ha newly declared as converted: "
+            f"{year} ({after - before:+,.1f} ha) with {newly:,.1f} ha newly declared as converted: "
             "declare the conversion (remaining_or_converted, previous_land_use), or explain the new drainage or "
             "the data in the inventory report",
-            **where, row=_row_at(rows, (region,), year, year - 1), column="area_ha",
+            **where, row=row, column="area_ha",
             found=f"{after - before:+,.1f} ha",
-            expected=f"within +/-{allowed.at[region, year]:,.1f} ha (new conversions {new.at[region, year]:,.1f} ha "
+            expected=f"within +/-{limit:,.1f} ha (new conversions {newly:,.1f} ha "
                      f"+ {thresholds.area_balance_tolerance_pct:g} % tolerance)"))
     return out
 
@@ -401,20 +410,23 @@ def check_rewetted_area_shrinks(result, thresholds: QaqcThresholds) -> list[Find
     flagged = (fall > allowed + 1e-9) & prev.notna()
     rows = _first_rows(act, LAND_KEYS)
     where = _activity_where(result)
+    i, j = np.nonzero(flagged.to_numpy())  # flagged stratum-years only
+    keys, years_j = flagged.index[i], np.asarray(flagged.columns)[j]
+    before_a, after_a = prev.to_numpy()[i, j], area.to_numpy()[i, j]
+    explained_a, allowed_a = explained.to_numpy()[i, j], allowed.to_numpy()[i, j]
     out = []
-    for key in flagged.index[flagged.any(axis=1)]:  # flagged strata only
+    for key, year, before, after, newly, limit, row in zip(keys, years_j, before_a, after_a, explained_a, allowed_a,
+                                                           _rows_at(rows, keys, years_j)):
         labels = dict(zip(LAND_KEYS, key))
-        for year in flagged.columns[flagged.loc[key]]:
-            before, after = prev.at[key, year], area.at[key, year]
-            out.append(Finding(
-                "warning", "rewetted_area_shrinks",
-                f"rewetted area of {labels['region']} {_describe(labels, REWETTED_WORDS)} falls from "
-                f"{before:,.1f} ha in {year - 1} to {after:,.1f} ha in {year} with "
-                f"{explained.at[key, year]:,.1f} ha newly declared as converted from {labels['land_use']}: "
-                "if the land was drained again, report it as drained; otherwise declare the conversion or "
-                "correct the areas",
-                **where, row=_row_at(rows, key, year, year - 1), column="area_ha",
-                found=f"{after - before:+,.1f} ha", expected=f"a fall of at most {allowed.at[key, year]:,.1f} ha"))
+        out.append(Finding(
+            "warning", "rewetted_area_shrinks",
+            f"rewetted area of {labels['region']} {_describe(labels, REWETTED_WORDS)} falls from "
+            f"{before:,.1f} ha in {year - 1} to {after:,.1f} ha in {year} with "
+            f"{newly:,.1f} ha newly declared as converted from {labels['land_use']}: "
+            "if the land was drained again, report it as drained; otherwise declare the conversion or "
+            "correct the areas",
+            **where, row=row, column="area_ha",
+            found=f"{after - before:+,.1f} ha", expected=f"a fall of at most {limit:,.1f} ha"))
     return out
 
 
@@ -467,14 +479,15 @@ def check_year_on_year_area(result, thresholds: QaqcThresholds) -> list[Finding]
     rows = _first_rows(act, LAND_KEYS)
     where = _activity_where(result)
     out = []
-    for r in jumps.itertuples(index=False):  # flagged stratum-years
-        key = tuple(getattr(r, k) for k in LAND_KEYS)
+    keys = pd.MultiIndex.from_frame(jumps[LAND_KEYS]) if len(jumps) else pd.Index([])
+    found_rows = _rows_at(rows, keys, jumps["year"].to_numpy())
+    for r, key, row in zip(jumps.itertuples(index=False), keys, found_rows):  # flagged stratum-years
         labels = dict(zip(LAND_KEYS, key))
         out.append(Finding(
             r.severity, "year_on_year_area",
             f"area of {labels['region']} {_describe(labels)} {_change_text('grows', 'shrinks', r)} "
             f"({r.before:,.1f} -> {r.after:,.1f} ha): explain the change in the inventory report",
-            **where, row=_row_at(rows, key, int(r.year), int(r.year) - 1), column="area_ha",
+            **where, row=row, column="area_ha",
             found=f"{r.change:+,.1f} ha", expected=f"within +/-{thresholds.year_on_year_area_pct:g} % of "
             f"{r.before:,.1f} ha"))
     return out
@@ -512,9 +525,22 @@ def check_year_on_year_emissions(result, thresholds: QaqcThresholds) -> list[Fin
 # --- 4: implied emission factors and the row arithmetic ------------------------------------------------
 
 
+ESTIMATE_COLUMNS_LEFT_OUT = ("notation_reason", "equation", "emission_basis", "emission_basis_t", "tier",
+                             "activity_source", "default_factor_id", "land_category_code")
+
+
 def _estimates(result) -> pd.DataFrame:
+    """The estimate rows, with the columns the checks read: made once per :func:`run_checks`.
+
+    (A filtered copy of the whole results table per check would hold several times its memory at a
+    million stratum-years.)
+    """
+    cached = getattr(result, "_qaqc_estimates", None)
+    if cached is not None and cached[0] is result.emissions:
+        return cached[1]
     em = result.emissions
-    return em[em["notation_key"] == ""]
+    columns = [c for c in em.columns if c not in ESTIMATE_COLUMNS_LEFT_OUT]
+    return em.loc[(em["notation_key"] == "").to_numpy(dtype=bool), columns]
 
 
 def check_implied_emission_factor(result, thresholds: QaqcThresholds) -> list[Finding]:
@@ -647,12 +673,12 @@ def check_override_validity(result, thresholds: QaqcThresholds) -> list[Finding]
     file = str(result.settings.overrides) if result.settings.overrides else ""
     out = []
     for column in ("factor_id", "parameter_id"):  # main factor, secondary parameter
-        uses = em[em[column].isin(ov.index)]
+        uses = em.loc[em[column].isin(ov.index).to_numpy(dtype=bool), SERIES_KEYS]
         if uses.empty:
             continue
-        series = uses[SERIES_KEYS].drop_duplicates()
-        rows = em.merge(series, on=SERIES_KEYS)
-        rows = rows[rows["notation_key"] == ""].copy()
+        series = uses.drop_duplicates()
+        est = _estimates(result)
+        rows = est[SERIES_KEYS + ["year", column]].merge(series, on=SERIES_KEYS)
         rows["_ov"] = rows[column].isin(ov.index)
         span = rows[rows["_ov"]].groupby(SERIES_KEYS).agg(
             _lo=("year", "min"), _hi=("year", "max"),
@@ -755,7 +781,8 @@ def check_no_with_area(result, thresholds: QaqcThresholds) -> list[Finding]:
     """
     cats, em = result.categories, result.emissions
     no = cats[cats["notation_key"] == "NO"]
-    present = em[em["area_ha"] > 0]
+    present = em.loc[(em["area_ha"] > 0).to_numpy(dtype=bool), ["category_code", "land_category_code", "gas", "year",
+                                                                 "area_ha"]]
     if no.empty or present.empty:
         return []
     occupied = pd.concat([present[["category_code", "gas", "year", "area_ha"]],
@@ -1203,10 +1230,14 @@ def run_checks(result, thresholds: QaqcThresholds | None = None, national_totals
     """
     thresholds = thresholds or QaqcThresholds()
     findings: list[Finding] = []
-    for check in CHECK_FUNCTIONS:
-        findings += check(result, thresholds)
-    findings += check_ne_insignificance(result, thresholds, national_totals)
-    findings += check_assumptions(result, thresholds, evidence)
+    result._qaqc_estimates = (result.emissions, _estimates(result))  # shared by the checks, dropped after
+    try:
+        for check in CHECK_FUNCTIONS:
+            findings += check(result, thresholds)
+        findings += check_ne_insignificance(result, thresholds, national_totals)
+        findings += check_assumptions(result, thresholds, evidence)
+    finally:
+        result._qaqc_estimates = None
     order = {c.check: i for i, c in enumerate(CHECKS)}
     return sorted(findings, key=lambda f: order.get(f.check, len(order)))  # stable: keeps each check's order
 
