@@ -119,7 +119,7 @@ def test_user_markup_is_text_and_fetches_nothing(tmp_path, demo_copy, monkeypatc
 
     monkeypatch.setattr(report_module, "RestrictedFetcher", Spy)
     out = tmp_path / "out"
-    result.write(out)
+    result.write(out, parallel=False)  # in this process, where the spy sees the fetcher
     assert fetchers and all(not f.refused for f in fetchers)  # escaped: nothing even asked for
     fetcher = original(report_module.resource_dir("report_templates"))
     with pytest.raises(ValueError, match="refused"):
@@ -138,3 +138,28 @@ def test_report_is_deterministic(demo_result, tmp_path):
     assert (a / "report.html").read_bytes() == (b / "report.html").read_bytes()
     text = [" ".join(p.extract_text() for p in PdfReader(x / "report.pdf").pages) for x in (a, b)]
     assert text[0] == text[1]
+
+
+def test_report_laid_out_in_a_second_process_is_the_same(tmp_path, demo_result):
+    # The parallel write (report in a forked process) and the serial one give the same files.
+    from pypdf import PdfReader
+
+    serial, parallel = tmp_path / "serial", tmp_path / "parallel"
+    demo_result.write(serial, parallel=False)
+    demo_result.write(parallel, parallel=True)
+    assert (serial / "report.html").read_bytes() == (parallel / "report.html").read_bytes()
+    text = [[p.extract_text() for p in PdfReader(f / "report.pdf").pages] for f in (serial, parallel)]
+    assert text[0] == text[1]
+
+
+def test_a_failing_report_process_fails_the_write_and_leaves_nothing(tmp_path, demo_result, monkeypatch):
+    from compiler.render import report as report_module
+
+    def boom(*args, **kwargs):
+        raise RuntimeError("layout failed")
+
+    monkeypatch.setattr(report_module, "write_report", boom)  # the forked process inherits the patch
+    out = tmp_path / "out"
+    with pytest.raises(RuntimeError, match="layout failed"):
+        demo_result.write(out, parallel=True)
+    assert not out.exists() and list(tmp_path.iterdir()) == []

@@ -9,9 +9,11 @@ the temporary one removed.
 from __future__ import annotations
 
 import json
+import multiprocessing
 import os
 import shutil
 import tempfile
+import threading
 from pathlib import Path
 
 from .. import __version__
@@ -23,18 +25,33 @@ from .workbook import write_workbook
 MARKER = ".histosol-output"
 
 
-def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = False) -> Path:
-    """Every output of a compile, written atomically into ``out_dir``."""
+def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = False,
+                  parallel: bool | None = None) -> Path:
+    """Every output of a compile, written atomically into ``out_dir``.
+
+    ``parallel`` (default: where the system can fork and no other Python thread runs) lays out the
+    report in a forked process on the second core while this one writes the tables; the files are
+    the same either way. An archive needs the report's layout in this process, so it is serial.
+    """
 
     def fill(tmp: Path) -> None:
         from ..pipeline import EXPORT_COLUMNS
 
-        write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv")
-        write_factors_csv(result.factors_used, tmp / "factors.csv")
-        write_emissions_csv(result.gap_fills, tmp / "gap_filling.csv")
-        write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__), tmp / "datapackage.json")
-        write_workbook(result, tmp / "inventory.xlsx")
-        if report or archive:
+        job = ReportJob.start(result, tmp) if report and not archive and _can_fork(parallel) else None
+        try:
+            write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv")
+            write_factors_csv(result.factors_used, tmp / "factors.csv")
+            write_emissions_csv(result.gap_fills, tmp / "gap_filling.csv")
+            write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__),
+                              tmp / "datapackage.json")
+            write_workbook(result, tmp / "inventory.xlsx")
+        except BaseException:
+            if job is not None:
+                job.cancel()
+            raise
+        if job is not None:
+            job.finish()
+        elif report or archive:
             from .report import write_report
 
             write_report(result, tmp)
@@ -47,6 +64,65 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
             write_archive(result, tmp)
 
     return atomic_folder(Path(out_dir), fill)
+
+
+def _can_fork(parallel: bool | None) -> bool:
+    if parallel is False or "fork" not in multiprocessing.get_all_start_methods():
+        return False
+    return parallel is True or threading.active_count() == 1
+
+
+class ReportJob:
+    """The report (HTML and PDF) written by a forked copy of this process; :meth:`finish` waits for it."""
+
+    def __init__(self, process, connection):
+        self.process, self.connection = process, connection
+
+    @classmethod
+    def start(cls, result, folder: Path) -> "ReportJob":
+        context = multiprocessing.get_context("fork")
+        receive, send = context.Pipe(duplex=False)
+        process = context.Process(target=_report_child, args=(result, folder, send), daemon=True)
+        process.start()
+        send.close()
+        return cls(process, receive)
+
+    def finish(self) -> None:
+        """Wait for the report; raise what the child raised (or say how it died)."""
+        try:
+            status, payload = self.connection.recv()
+        except EOFError:
+            status, payload = "died", None
+        finally:
+            self.connection.close()
+            self.process.join()
+        if status == "ok":
+            return
+        if status == "error" and isinstance(payload, BaseException):
+            raise payload
+        raise RuntimeError(f"the report process ended without a result (exit code {self.process.exitcode})"
+                           + (f": {payload}" if payload else ""))
+
+    def cancel(self) -> None:
+        if self.process.is_alive():
+            self.process.terminate()
+        self.process.join()
+        self.connection.close()
+
+
+def _report_child(result, folder: Path, connection) -> None:
+    from .report import write_report
+
+    try:
+        write_report(result, folder)
+        connection.send(("ok", None))
+    except BaseException as exc:  # sent to the parent, which raises it there
+        try:
+            connection.send(("error", exc))
+        except Exception:  # an exception that cannot be pickled: its text
+            connection.send(("text", f"{type(exc).__name__}: {exc}"))
+    finally:
+        connection.close()
 
 
 def atomic_folder(out_dir: Path, fill) -> Path:
