@@ -122,11 +122,12 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
 
     engine = compute(activity, fires, overrides, library, settings, log)
     log.raise_if_errors()
-    emissions = engine.emissions
+    emissions, register = engine.emissions, engine.register
+    del engine  # the results table is held once, by ``emissions``: each step below replaces it
     emissions["year"] = emissions["year"].astype("int64")
     emissions["input_row"] = emissions["input_row"].astype("int64")
 
-    _check_overrides_against_defaults(emissions, engine.register, overrides, settings, log)
+    _check_overrides_against_defaults(emissions, register, overrides, settings, log)
     _check_review(emissions, review, settings, log)
     log.raise_if_errors()
 
@@ -135,8 +136,9 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     emissions = allocate(emissions, library)
     names = {p: (Path(p).name if p else "") for p in emissions["input_file"].unique()}
     emissions["input_file"] = emissions["input_file"].map(names)  # once per distinct file, not per row
-    emissions = emissions.sort_values(["year", "region", "category_code", "pathway", "input_row"],
-                                      kind="stable").reset_index(drop=True)
+    held = [emissions]
+    del emissions  # _sorted takes the table out of ``held``, so that each reordered column frees its original
+    emissions = _sorted(held, ["year", "region", "category_code", "pathway", "input_row"])
     categories = category_table(emissions, library, settings.years)
 
     _check_area_balance(activity, emissions, log)
@@ -150,7 +152,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
                          **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
     used_ids = set(emissions["factor_id"].unique()) | set(emissions["parameter_id"].unique())
-    factors_used = engine.register[engine.register["factor_id"].isin(used_ids)].copy()
+    factors_used = register[register["factor_id"].isin(used_ids)].copy()
     factors_used = _attach_review(factors_used, review)
 
     hashes = {name: file_sha256(path) for name, path in settings.input_paths().items()}
@@ -168,6 +170,40 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     if analyses:
         _analyse(result, progress)
     return result
+
+
+def _sort_codes(column: pd.Series) -> np.ndarray:
+    """Integer codes that sort as ``column`` sorts (missing values last)."""
+    if pd.api.types.is_numeric_dtype(column.dtype) and not isinstance(column.dtype, pd.CategoricalDtype):
+        values = column.to_numpy(dtype=float, na_value=np.nan)
+        return np.where(np.isnan(values), np.inf, values)
+    codes, uniques = pd.factorize(column, sort=True)
+    return np.where(codes < 0, len(uniques), codes)
+
+
+def _sorted(held: list[pd.DataFrame], keys: list[str]) -> pd.DataFrame:
+    """``frame.sort_values(keys, kind="stable")`` with a fresh index, holding about one extra column at a time.
+
+    ``held`` is a one-item list with the frame, emptied here (the caller keeps no reference to it).
+
+    The order comes from one stable lexicographic sort of the key codes; the text columns (each its own
+    array) are then reordered one by one, each original freed once it is reordered, and the numeric
+    columns together. A million stratum-years make a results table of several GiB, which a whole-table
+    sort would hold twice.
+    """
+    frame = held.pop()
+    order = np.lexsort([_sort_codes(frame[k]) for k in reversed(keys)])
+    columns = list(frame.columns)
+    text = [c for c in columns if not pd.api.types.is_numeric_dtype(frame[c].dtype)
+            and not pd.api.types.is_bool_dtype(frame[c].dtype)]
+    reordered = {}
+    for c in text:
+        reordered[c] = frame[c].array.take(order)
+        frame = frame.drop(columns=c)
+    rest = frame.take(order)
+    rest.index = pd.RangeIndex(len(rest))
+    out = pd.concat([rest, pd.DataFrame(reordered, index=rest.index)], axis=1)
+    return out[columns]
 
 
 def _analyse(result: InventoryResult, progress) -> None:
