@@ -32,7 +32,7 @@ from .errors import Finding, FindingLog
 from .factors import KEYS, QUANTITIES, override_weight, unit_kind_ok, check_override_conflicts
 from .readers import MAX_LISTED, ROW, printable, read_table
 from .settings import Settings
-from .vocabulary import TERMS, describe_accepted, normalise_column, normalise_text
+from .vocabulary import KEY_COLUMNS, TERMS, describe_accepted, normalise_column, normalise_text
 
 MAX_AREA_HA = 1e9
 MAX_MAGNITUDE = 1e9
@@ -95,19 +95,19 @@ FIRE_COLUMNS = [
     Column("burned_ha", "number", True, maximum=MAX_AREA_HA),
     Column("remaining_or_converted", "term", False, "remaining_or_converted", "remaining"),
 ]
+def _any_value_columns(names) -> list[Column]:
+    """Optional stratum keys where a blank cell means "any value" (overrides, driver series)."""
+    return [Column(name, "term", False, name, blank_is_any=True) for name in names]
+
+
 OVERRIDE_COLUMNS = [
     Column("quantity", "text", True),
     Column("value", "signed", True),  # removals are negative (e.g. rewetted CO2); bounds by quantity below
     Column("unit", "text", True),
     Column("source", "text", True, max_length=MAX_NOTE_CHARS, multiline=True),
     Column("override_id", "text"),
-    Column("climate_zone", "term", False, "climate_zone", blank_is_any=True),
-    Column("land_use", "term", False, "land_use", blank_is_any=True),
-    Column("soil_status", "term", False, "soil_status", blank_is_any=True),
-    Column("nutrient_status", "term", False, "nutrient_status", blank_is_any=True),
-    Column("drainage_depth", "term", False, "drainage_depth", blank_is_any=True),
-    Column("subtype", "term", False, "subtype", blank_is_any=True),
-    Column("fire_type", "term", False, "fire_type", blank_is_any=True),
+    *_any_value_columns(KEY_COLUMNS),
+    *_any_value_columns(["fire_type"]),
     Column("ci_low", "signed"),
     Column("ci_high", "signed"),
     Column("tier", "text", False, default="Tier 2 country-specific"),
@@ -144,13 +144,8 @@ SURROGATE_COLUMNS = [
     Column("unit", "text", True),
     Column("source", "text", True, max_length=MAX_NOTE_CHARS, multiline=True),
     Column("region", "text"),
-    Column("climate_zone", "term", False, "climate_zone", blank_is_any=True),
-    Column("land_use", "term", False, "land_use", blank_is_any=True),
-    Column("soil_status", "term", False, "soil_status", blank_is_any=True),
-    Column("nutrient_status", "term", False, "nutrient_status", blank_is_any=True),
-    Column("drainage_depth", "term", False, "drainage_depth", blank_is_any=True),
-    Column("subtype", "term", False, "subtype", blank_is_any=True),
-    Column("remaining_or_converted", "term", False, "remaining_or_converted", blank_is_any=True),
+    *_any_value_columns(KEY_COLUMNS),
+    *_any_value_columns(["remaining_or_converted"]),
     Column("note", "text", max_length=MAX_NOTE_CHARS, multiline=True),
 ]
 SURROGATE_METHODS = ("overlap", "surrogate")

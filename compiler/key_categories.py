@@ -414,7 +414,7 @@ def key_categories(result, uncertainty=None, national_totals: pd.DataFrame | Non
 
     # Tiers of the estimate rows behind each category and gas.
     em = result.emissions
-    est = em[em["notation_key"] == ""]
+    est = em.loc[(em["notation_key"] == "").to_numpy(dtype=bool), ["category_code", "gas", "tier"]]
     tiers = est.groupby(["category_code", "gas"])["tier"].agg(lambda t: "; ".join(sorted(set(t)))).rename("tiers")
     if not table.empty:
         table = table.merge(tiers.reset_index(), on=["category_code", "gas"], how="left")

@@ -421,9 +421,11 @@ def _build_model(result) -> _Model:
     years = _reported_years(settings)
     findings: list[Finding] = []
     em = result.emissions
-    est = em[(em["notation_key"] == "") & em["emission_t"].notna()].copy()
+    # One selection of the rows analysed (estimates of the reported years): a copy of every estimate row
+    # first would hold most of the results table twice.
+    keep = (em["notation_key"] == "") & em["emission_t"].notna() & em["year"].astype(int).isin(years)
+    est = em[keep.to_numpy(dtype=bool)].reset_index(drop=True)
     est["year"] = est["year"].astype(int)
-    est = est[est["year"].isin(years)].reset_index(drop=True)
     if est.empty:
         raise UncertaintyModelError(f"no estimate rows in the reported years {years}: nothing to analyse")
     for col in STRATUM_DRAW_KEYS:
