@@ -163,3 +163,19 @@ def test_a_failing_report_process_fails_the_write_and_leaves_nothing(tmp_path, d
     with pytest.raises(RuntimeError, match="layout failed"):
         demo_result.write(out, parallel=True)
     assert not out.exists() and list(tmp_path.iterdir()) == []
+
+
+def test_text_printed_before_a_parallel_write_appears_once(tmp_path):
+    # The report process is a fork: output still buffered in this process (stdout to a pipe is buffered)
+    # must be flushed before it, or the child writes it a second time when it exits.
+    import subprocess
+    import sys
+
+    code = ("from compiler import compile_inventory\n"
+            "from compiler.resources import resource_dir\n"
+            "r = compile_inventory(resource_dir('examples') / 'demo' / 'inventory.toml', iterations=2000)\n"
+            "print('before write')\n"
+            f"r.write({str(tmp_path / 'out')!r}, parallel=True)\n")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.count("before write") == 1

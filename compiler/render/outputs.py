@@ -12,6 +12,7 @@ import json
 import multiprocessing
 import os
 import shutil
+import sys
 import tempfile
 import threading
 from pathlib import Path
@@ -81,6 +82,8 @@ class ReportJob:
     @classmethod
     def start(cls, result, folder: Path) -> "ReportJob":
         context = multiprocessing.get_context("fork")
+        sys.stdout.flush()  # buffered text would be written twice, once by the child (explicit, not left to multiprocessing)
+        sys.stderr.flush()
         receive, send = context.Pipe(duplex=False)
         process = context.Process(target=_report_child, args=(result, folder, send), daemon=True)
         process.start()
