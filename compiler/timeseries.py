@@ -344,8 +344,8 @@ def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: Findi
             keys[col_name] = "" if activity[col_name].dtype == object else np.nan
     counts = keys["activity_source"].value_counts()
     for how, count in counts.items():
-        log.add("info", "timeseries", f"{count} stratum-years {how} ({', '.join(sorted(set(keys.loc[keys['activity_source'] == how, 'region'])))})",
-                file=file)
+        regions = ", ".join(sorted(set(keys.loc[keys["activity_source"] == how, "region"])))
+        log.add("info", "timeseries", f"{count} stratum-years {how} ({regions})", file=file)
     out = pd.concat([activity, keys[activity.columns.tolist() + ["_donor_row"]]], ignore_index=True)
     out.attrs = activity.attrs
     out["year"] = out["year"].astype("Int64")

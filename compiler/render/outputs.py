@@ -82,7 +82,8 @@ class ReportJob:
     @classmethod
     def start(cls, result, folder: Path) -> "ReportJob":
         context = multiprocessing.get_context("fork")
-        sys.stdout.flush()  # buffered text would be written twice, once by the child (explicit, not left to multiprocessing)
+        # Buffered text would be written twice, once by the child: flushed here, not left to multiprocessing.
+        sys.stdout.flush()
         sys.stderr.flush()
         receive, send = context.Pipe(duplex=False)
         process = context.Process(target=_report_child, args=(result, folder, send), daemon=True)
