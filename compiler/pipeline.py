@@ -117,7 +117,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     surrogates = load_surrogates(settings, log)
     log.raise_if_errors()
     activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region,
-                         surrogates)
+                         surrogates, settings.fill_by_land_use)
     log.raise_if_errors()
 
     engine = compute(activity, fires, overrides, library, settings, log)

@@ -19,6 +19,7 @@ from typing import Any
 
 from .errors import Finding, SettingsError
 from .units import MASS_RATIO_CONVENTIONS
+from .vocabulary import TERMS
 
 FACTOR_SETS = ("ipcc2013ws", "ipcc2006")
 ATTRIBUTE = {"approach": "uncertainty_approach"}  # settings key -> Settings attribute, where they differ
@@ -75,6 +76,8 @@ SCHEMA: dict[str, dict[str, tuple]] = {
                  "gap filling of the area series: none (gaps are errors), interpolate, extrapolate, both"),
         "trend_years": ((int,), 5, None, "known years used for trend extrapolation"),
         "fill_by_region": ((dict,), {}, None, "per-region fill mode, e.g. {\"Quillfen\" = \"both\"}"),
+        "fill_by_land_use": ((dict,), {}, None,
+                             "per-land-use fill mode, e.g. {cropland = \"interpolate\"} (a region's mode comes first)"),
     },
     "qaqc": {
         "year_on_year_area_pct": ((int, float), 25.0, None, "flag a stratum's area change above this [%]"),
@@ -125,6 +128,7 @@ class Settings:
     qaqc: dict = field(default_factory=dict)
     trend_years: int = 5
     fill_by_region: dict = field(default_factory=dict)
+    fill_by_land_use: dict = field(default_factory=dict)
     max_input_mb: float = 512
     source: Path | None = None
     raw: dict = field(default_factory=dict, compare=False, repr=False)
@@ -254,10 +258,16 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
     if not 0 <= values["default_area_pct"] <= 1000:
         problems.append(_err("out of range", fname, column="uncertainty.default_area_pct",
                              found=str(values["default_area_pct"]), expected="0 to 1000 (percent)"))
-    for region, mode in values["fill_by_region"].items():
-        if mode not in ("none", "interpolate", "extrapolate", "both"):
-            problems.append(_err("value not accepted", fname, column=f"timeseries.fill_by_region.{region}",
-                                 found=str(mode), expected="none | interpolate | extrapolate | both"))
+    for table in ("fill_by_region", "fill_by_land_use"):
+        for key, mode in values[table].items():
+            if mode not in ("none", "interpolate", "extrapolate", "both"):
+                problems.append(_err("value not accepted", fname, column=f"timeseries.{table}.{key}",
+                                     found=str(mode), expected="none | interpolate | extrapolate | both"))
+    land_uses = TERMS["land_use"]
+    for key in values["fill_by_land_use"]:
+        if key not in land_uses:
+            problems.append(_err("unknown land use", fname, column=f"timeseries.fill_by_land_use.{key}", found=key,
+                                 expected=" | ".join(t for t in land_uses if t)))
     if not 2 <= values["trend_years"] <= 50:
         problems.append(_err("out of range", fname, column="timeseries.trend_years", found=str(values["trend_years"]),
                              expected="2 to 50"))
@@ -318,5 +328,6 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         default_area_pct=float(values["default_area_pct"]),
         fill=values["fill"], trend_years=values["trend_years"],
         qaqc={k: float(values[k]) for k in SCHEMA["qaqc"]}, fill_by_region=dict(values["fill_by_region"]),
+        fill_by_land_use=dict(values["fill_by_land_use"]),
         max_input_mb=values["max_input_mb"], source=path.resolve(), raw=data,
     )

@@ -236,13 +236,15 @@ def _series_fill(table: pd.DataFrame, known: np.ndarray, gaps: np.ndarray, years
 
 
 def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: FindingLog,
-              mode_by_region: dict[str, str] | None = None, surrogates: pd.DataFrame | None = None) -> pd.DataFrame:
+              mode_by_region: dict[str, str] | None = None, surrogates: pd.DataFrame | None = None,
+              mode_by_land_use: dict[str, str] | None = None) -> pd.DataFrame:
     """Return the activity table with gaps filled (or errors logged), with ``activity_source`` per row.
 
     Filled rows also carry ``fill_basis``: how the value was made (the years interpolated between, the
     years of the trend, or the series, ratio and years of Eq. 5.1 / Eq. 5.2). Driver series in
     ``surrogates`` (see :func:`compiler.activity.load_surrogates`) fill the gaps of the strata they
-    match first, whatever the fill mode; the remaining gaps follow ``mode``.
+    match first, whatever the fill mode; the remaining gaps follow the stratum's region's mode in
+    ``mode_by_region``, else its land use's in ``mode_by_land_use``, else ``mode``.
     """
     activity = activity.copy()
     activity["activity_source"] = "reported"
@@ -283,7 +285,9 @@ def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: Findi
             table, known, inside | after | before, years, surrogates, log)
         inside, after, before = inside & ~by_series, after & ~by_series, before & ~by_series
 
-    modes = regions.map(lambda r: mode_by_region.get(r, mode)).to_numpy()
+    by_land_use = mode_by_land_use or {}
+    land_uses = table.index.get_level_values("land_use")
+    modes = np.array([mode_by_region.get(r, by_land_use.get(u, mode)) for r, u in zip(regions, land_uses)])
     can_interp = np.isin(modes, ["interpolate", "both"])[:, None]
     can_extrap = np.isin(modes, ["extrapolate", "both"])[:, None]
 

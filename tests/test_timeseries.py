@@ -187,3 +187,33 @@ def test_a_series_matching_no_stratum_is_a_warning(tmp_path):
     settings = _with_series(tmp_path, {2010: 100.0, 2011: 110.0}, "s,overlap,2011,5,u,src,Elsewhere,\n", 2010, 2011)
     result = compile_inventory(settings)
     assert any(f.severity == "warning" and "matches no stratum" in f.message for f in result.finding_list)
+
+
+def test_fill_mode_by_land_use_with_the_region_first(tmp_path):
+    # Cropland interpolates, grassland is left at "none" (its gap is an error) unless its region says otherwise.
+    rows = [stratum(year=y, area_ha=a) for y, a in {2000: 100.0, 2003: 130.0}.items()]
+    rows += [stratum(year=y, land_use="grassland", nutrient_status="poor", area_ha=a)
+             for y, a in {2000: 10.0, 2003: 13.0}.items()]
+    settings = write_inventory(tmp_path, rows, first=2000, last=2003)
+    base = settings.read_text()
+    settings.write_text(base.replace("[inputs]", '[timeseries]\nfill = "none"\n'
+                                     'fill_by_land_use = { cropland = "interpolate" }\n[inputs]'))
+    with pytest.raises(InputError) as err:
+        compile_inventory(settings)
+    assert "missing years 2001, 2002 for stratum Testvale, temperate, grassland" in str(err.value)
+    assert "cropland" not in str(err.value)
+    settings.write_text(base.replace("[inputs]", '[timeseries]\nfill = "none"\nfill_by_region = { Testvale = "both" }\n'
+                                     'fill_by_land_use = { cropland = "none" }\n[inputs]'))
+    result = compile_inventory(settings)
+    onsite = result.emissions[result.emissions["pathway"] == "co2_onsite"]
+    assert (onsite.loc[onsite["year"] == 2001, "activity_source"] == "interpolated").all()
+    assert len(onsite[onsite["year"] == 2001]) == 2
+
+
+def test_fill_by_land_use_names_land_uses(tmp_path):
+    settings = _series(tmp_path, {2000: 100.0, 2003: 130.0}, "none")
+    settings.write_text(settings.read_text().replace('trend_years = 3', 'trend_years = 3\n'
+                                                     'fill_by_land_use = { croplands = "both" }'))
+    with pytest.raises(Exception) as err:
+        compile_inventory(settings)
+    assert "timeseries.fill_by_land_use.croplands" in str(err.value) and "unknown land use" in str(err.value)
