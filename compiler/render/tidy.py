@@ -44,6 +44,8 @@ FIELDS: dict[str, tuple[str, str, str]] = {
     "notation_reason": ("string", "", "explanation of the notation key"),
     "equation": ("string", "", "equation applied"),
     "activity_source": ("string", "", "reported | interpolated | extrapolated | overlap | surrogate (gap filling)"),
+    "fill_basis": ("string", "", "how a gap-filled area was made: the years interpolated between, the years of the "
+                   "trend, or the series, ratio and years of Eq. 5.1 / Eq. 5.2"),
     "input_file": ("string", "", "input file of the stratum or fire row"),
     "input_row": ("integer", "", "row number in that file (header = 1); 0 for a gap-filled stratum-year"),
 }
@@ -55,11 +57,11 @@ def write_emissions_csv(frame: pd.DataFrame, path: Path) -> None:
 
 def datapackage(name: str, columns: list[str], version: str) -> dict:
     package = _datapackage(name, columns, version)
-    package["resources"].reverse()  # emissions first, then factors
+    package["resources"].reverse()  # emissions first, then factors and the gap-filled stratum-years
     return package
 
 
-def _datapackage(name: str, columns: list[str], version: str) -> dict:
+def _fields(columns: list[str]) -> list[dict]:
     fields = []
     for col in columns:
         ftype, unit, description = FIELDS[col]
@@ -67,12 +69,27 @@ def _datapackage(name: str, columns: list[str], version: str) -> dict:
         if unit:
             field["unit"] = unit  # an extra property, ignored by validators
         fields.append(field)
+    return fields
+
+
+def _datapackage(name: str, columns: list[str], version: str) -> dict:
+    from ..pipeline import GAP_FILL_COLUMNS
+
+    fields = _fields(columns)
     return {
         "name": "organic-soils-inventory",
         "title": f"{name}: emissions and removals of organic soils",
         "profile": "tabular-data-package",
         "created_with": f"histosol {version}",
         "resources": [{
+            "name": "gap_filling",
+            "path": "gap_filling.csv",
+            "profile": "tabular-data-resource",
+            "format": "csv",
+            "mediatype": "text/csv",
+            "encoding": "utf-8",
+            "schema": {"fields": _fields(GAP_FILL_COLUMNS), "missingValues": [""]},
+        }, {
             "name": "factors",
             "path": "factors.csv",
             "profile": "tabular-data-resource",
