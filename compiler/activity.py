@@ -28,7 +28,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import Finding, FindingLog
+from .errors import FindingLog
 from .factors import KEYS, QUANTITIES, override_weight, unit_kind_ok, check_override_conflicts
 from .readers import MAX_LISTED, ROW, printable, read_table
 from .settings import Settings
@@ -356,6 +356,16 @@ def _load(path: Path, sheet: str, spec: list[Column], log: FindingLog, settings:
     return frame, sheet_name
 
 
+def _load_optional(path: Path | None, spec: list[Column], log: FindingLog,
+                   settings: Settings) -> tuple[pd.DataFrame, "_Checker | None"]:
+    """An optional input file read against ``spec``: (frame, checker), or (empty frame, None) when the file is
+    not given or has no usable rows."""
+    if path is None:
+        return pd.DataFrame(), None
+    frame, sheet = _load(path, "", spec, log, settings)
+    return frame, (None if frame.empty else _Checker(log, str(path), sheet))
+
+
 def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
     """The tidy stratum table: one row per year, region and stratum.
 
@@ -441,13 +451,10 @@ def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
 
 
 def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
-    if settings.overrides is None:
-        return pd.DataFrame()
-    frame, sheet = _load(settings.overrides, "", OVERRIDE_COLUMNS, log, settings)
-    if frame.empty:
+    frame, check = _load_optional(settings.overrides, OVERRIDE_COLUMNS, log, settings)
+    if check is None:
         return frame
-    file = str(settings.overrides)
-    check = _Checker(log, file, sheet)
+    file, sheet = check.file, check.sheet
     unknown_q = frame[~frame["quantity"].isin(list(QUANTITIES)) & (frame["quantity"] != "")]
     check.rows("error", "override", "unknown quantity", unknown_q, "quantity", unknown_q["quantity"],
                " | ".join(QUANTITIES))
@@ -514,13 +521,10 @@ def load_review(settings: Settings, log: FindingLog, register_ids: set[str]) -> 
 
 def load_surrogates(settings: Settings, log: FindingLog) -> pd.DataFrame:
     """Driver series for the overlap (Eq. 5.1) and surrogate (Eq. 5.2) techniques; empty without the input."""
-    if settings.surrogates is None:
-        return pd.DataFrame()
-    frame, sheet = _load(settings.surrogates, "", SURROGATE_COLUMNS, log, settings)
-    if frame.empty:
+    frame, check = _load_optional(settings.surrogates, SURROGATE_COLUMNS, log, settings)
+    if check is None:
         return frame
-    file = str(settings.surrogates)
-    check = _Checker(log, file, sheet)
+    file = check.file
     frame["method"] = frame["method"].map(normalise_text)
     bad = frame[~frame["method"].isin(SURROGATE_METHODS)]
     check.rows("error", "surrogates", "unknown method", bad, "method", bad["method"], " | ".join(SURROGATE_METHODS))

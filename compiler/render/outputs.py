@@ -18,7 +18,7 @@ import threading
 from pathlib import Path
 
 from .. import __version__
-from ..errors import CompilerError, InputError, Finding
+from ..errors import InputError, Finding
 from .manifest import manifest
 from .tidy import datapackage, write_datapackage, write_emissions_csv, write_factors_csv
 from .workbook import write_workbook
