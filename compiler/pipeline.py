@@ -23,7 +23,7 @@ from .errors import Finding, FindingLog, InputError, QaqcError
 from .factors import FactorLibrary, file_sha256, load_library
 from .metrics import co2_equivalent, gwp_table
 from .settings import Settings, load_settings
-from .timeseries import fill_gaps
+from .timeseries import SERIES_KEYS, fill_gaps
 from .units import conversion_factor
 
 EXPORT_COLUMNS = [
@@ -35,8 +35,7 @@ EXPORT_COLUMNS = [
     "notation_key", "notation_reason", "equation", "activity_source", "input_file", "input_row",
 ]
 
-GAP_FILL_COLUMNS = ["region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype",
-                    "remaining_or_converted", "previous_land_use", "year", "area_ha", "activity_source", "fill_basis"]
+GAP_FILL_COLUMNS = [*SERIES_KEYS, "year", "area_ha", "activity_source", "fill_basis"]
 
 
 @dataclass
@@ -74,7 +73,7 @@ class InventoryResult:
         if "activity_source" not in act:
             return pd.DataFrame(columns=GAP_FILL_COLUMNS)
         filled = act[act["activity_source"] != "reported"]
-        return filled.reindex(columns=GAP_FILL_COLUMNS).sort_values(GAP_FILL_COLUMNS[:10]).reset_index(drop=True)
+        return filled.reindex(columns=GAP_FILL_COLUMNS).sort_values([*SERIES_KEYS, "year"]).reset_index(drop=True)
 
     def write(self, out_dir: str | Path, **options) -> Path:
         """Write every output into ``out_dir`` atomically (see :mod:`compiler.render.outputs`)."""

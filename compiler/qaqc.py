@@ -314,7 +314,10 @@ def _first_rows(activity: pd.DataFrame, keys: list[str]) -> pd.Series:
 
 
 def _rows_at(rows: pd.Series, keys: pd.Index, years: np.ndarray) -> list[int | None]:
-    """:func:`_row_at` for many flagged cells at once: one reindex for the year, one for the year before."""
+    """First input row of each flagged cell (key, year), else of the year before; None where neither has one.
+
+    One reindex for the years and one for the years before, not a lookup per cell.
+    """
     if len(keys) == 0:
         return []
     tuples = [k if isinstance(k, tuple) else (k,) for k in keys]

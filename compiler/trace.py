@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import Finding, InputError
+from .timeseries import SERIES_KEYS
 
 
 def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -31,8 +32,7 @@ def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:
     return emissions, factors
 
 
-FILL_KEYS = ["year", "region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth",
-             "subtype", "remaining_or_converted", "previous_land_use"]
+FILL_KEYS = ["year", *SERIES_KEYS]  # what identifies a stratum-year in gap_filling.csv
 
 
 def _fill_basis(emissions: pd.DataFrame, row) -> str:

@@ -283,8 +283,8 @@ def _gap_fill_context(result) -> list[dict]:
     fills = result.gap_fills
     if fills.empty:
         return []
-    keys = ["region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype",
-            "remaining_or_converted", "previous_land_use"]
+    from ..timeseries import SERIES_KEYS as keys
+
     # Years of one gap share the basis text except for Eq. 5.2, which names each year's driver value: group
     # those by series instead.
     fills = fills.assign(_basis=np.where(fills["activity_source"] == "surrogate",
