@@ -6,6 +6,7 @@ import json
 import openpyxl
 import pandas as pd
 import pytest
+from hypothesis import given, settings, strategies as st
 from frictionless import validate  # reference implementation of the Table Schema standard
 
 from compiler import compile_inventory
@@ -138,3 +139,41 @@ def test_column_by_column_sort_equals_a_stable_sort_values():
     keys = ["year", "region", "category_code", "pathway", "input_row"]
     expected = frame.sort_values(keys, kind="stable").reset_index(drop=True)
     pd.testing.assert_frame_equal(_sorted([frame.copy()], keys), expected)
+
+
+_TEXT = st.one_of(st.none(), st.sampled_from(["", "drained", "a,b", 'say "no"', "two\nlines", "cr\rhere", " lead",
+                                             "trail ", "Å ø ∑", "=1+1", "NA", "nan"]), st.text(max_size=6))
+_FLOAT = st.one_of(st.floats(allow_nan=True, allow_infinity=True), st.sampled_from([0.0, -0.0, 1e16, 1e15, 1e-5,
+                                                                                     1e-4, 4200.0, 0.1 + 0.2]))
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(_TEXT, _FLOAT, st.integers(-2 ** 63, 2 ** 63 - 1), st.booleans()), max_size=40),
+       st.integers(1, 7))
+def test_csv_writer_gives_the_bytes_of_pandas_to_csv(tmp_path_factory, rows, piece):
+    # Reference: pandas DataFrame.to_csv (index=False, lineterminator="\n"), the writer emissions.csv was
+    # written with before; write_csv formats each distinct value once and must not change a byte,
+    # whatever the piece size (quotes, commas, line breaks, -0.0, NaN, inf, 17-digit floats).
+    import compiler.render.tidy as tidy
+
+    frame = pd.DataFrame({
+        "text": pd.Series([r[0] for r in rows], dtype="str"), "value": pd.Series([r[1] for r in rows], dtype=float),
+        "count": pd.Series([r[2] for r in rows], dtype="int64"), "flag": pd.Series([r[3] for r in rows], dtype=bool),
+        "sorted out": pd.Series([r[0] for r in rows][::-1], dtype="str")})
+    folder = tmp_path_factory.mktemp("csv")
+    frame.to_csv(folder / "pandas.csv", index=False, lineterminator="\n", encoding="utf-8")
+    old, tidy.CSV_ROWS_PER_PIECE = tidy.CSV_ROWS_PER_PIECE, piece
+    try:
+        tidy.write_csv(frame, folder / "ours.csv")
+        tidy.write_csv(frame, folder / "subset.csv", ["value", "text"])
+    finally:
+        tidy.CSV_ROWS_PER_PIECE = old
+    assert (folder / "ours.csv").read_bytes() == (folder / "pandas.csv").read_bytes()
+    frame[["value", "text"]].to_csv(folder / "pandas_subset.csv", index=False, lineterminator="\n", encoding="utf-8")
+    assert (folder / "subset.csv").read_bytes() == (folder / "pandas_subset.csv").read_bytes()
+
+
+def test_demo_emissions_csv_is_what_pandas_writes(demo_output, demo_result):
+    # Reference: pandas DataFrame.to_csv on the same columns (the fast writer must not change a byte).
+    expected = demo_result.emissions[EXPORT_COLUMNS].to_csv(index=False, lineterminator="\n").encode("utf-8")
+    assert (demo_output / "emissions.csv").read_bytes() == expected

@@ -20,7 +20,7 @@ from pathlib import Path
 from .. import __version__
 from ..errors import InputError, Finding
 from .manifest import manifest
-from .tidy import datapackage, write_datapackage, write_emissions_csv, write_factors_csv
+from .tidy import datapackage, write_datapackage, write_csv, write_factors_csv
 from .workbook import write_workbook
 
 MARKER = ".histosol-output"
@@ -40,9 +40,9 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
 
         job = ReportJob.start(result, tmp) if report and not archive and _can_fork(parallel) else None
         try:
-            write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv")
+            write_csv(result.emissions, tmp / "emissions.csv", EXPORT_COLUMNS)
             write_factors_csv(result.factors_used, tmp / "factors.csv")
-            write_emissions_csv(result.gap_fills, tmp / "gap_filling.csv")
+            write_csv(result.gap_fills, tmp / "gap_filling.csv")
             write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__),
                               tmp / "datapackage.json")
             write_workbook(result, tmp / "inventory.xlsx")

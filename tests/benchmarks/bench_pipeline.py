@@ -12,7 +12,7 @@ compile    pipeline.compile_inventory(analyses=False), the whole compile without
 approach1  uncertainty.approach1
 mc         uncertainty.monte_carlo with a fixed iteration count (default 2000)
 workbook   render.workbook.write_workbook (with the uncertainty sheets)
-csv        render.tidy.write_emissions_csv
+csv        render.tidy.write_csv
 report     render.report.write_report (HTML and PDF; only at the smallest sizes)
 
 Beside ``compute`` a bare numpy kernel does the irreducible arithmetic on the same arrays (gather
@@ -163,7 +163,7 @@ def run_size(n_rows: int, workdir: Path, repeat: int, iterations: int, report: b
     from compiler.factors import load_library
     from compiler.metrics import co2_equivalent, gwp_table
     from compiler.pipeline import EXPORT_COLUMNS, compile_inventory
-    from compiler.render.tidy import write_emissions_csv
+    from compiler.render.tidy import write_csv
     from compiler.render.workbook import SHEET_ROW_LIMIT, write_workbook
     from compiler.settings import load_settings
     from compiler.timeseries import fill_gaps
@@ -255,7 +255,7 @@ def run_size(n_rows: int, workdir: Path, repeat: int, iterations: int, report: b
         except Skipped:
             pass
         try:
-            stage("csv", lambda: write_emissions_csv(result.emissions[EXPORT_COLUMNS], tmp / "emissions.csv"))
+            stage("csv", lambda: write_csv(result.emissions, tmp / "emissions.csv", EXPORT_COLUMNS))
             out["emissions_csv_mb"] = (tmp / "emissions.csv").stat().st_size / 1e6
         except Skipped:
             pass
