@@ -55,6 +55,34 @@ def test_workbook_sheets_and_summary_equal_the_tables(demo_output, demo_result):
     assert rows[("Total", "CO2-eq")] == pytest.approx(total)
 
 
+def test_workbook_trace_sheet_leads_to_the_strata_rows(demo_output, demo_result):
+    # The trace sheet is streamed as XML (not through openpyxl's cell writer): read back with openpyxl,
+    # every row must point at the strata row it came from, carry that row's exact numbers and its
+    # number formats, and the rows of a cell must add up to cell_total_t (the sheet's own promise).
+    wb = openpyxl.load_workbook(demo_output / "inventory.xlsx")
+    trace, strata = wb["trace"], wb["strata"]
+    header = [c.value for c in trace[2]]
+    s_header = [c.value for c in strata[1]]
+    rows = [dict(zip(header, (c.value for c in r))) for r in trace.iter_rows(min_row=3)]
+    est = demo_result.emissions
+    expected = est[(est.notation_key == "") & est.year.isin([demo_result.settings.first_year,
+                                                             demo_result.settings.last_year])]
+    assert len(rows) == len(expected)
+    for row in rows[:: max(1, len(rows) // 200)]:
+        target = dict(zip(s_header, (c.value for c in strata[row["strata_sheet_row"]])))
+        for key in ("category_code", "gas", "year", "region", "pathway", "factor_id", "factor_value",
+                    "area_basis_ha", "conversion", "emission_t"):
+            assert row[key] == target[key], key
+    frame = pd.DataFrame(rows)
+    sums = frame.groupby(["category_code", "gas", "year"]).agg(total=("emission_t", "sum"),
+                                                               cell=("cell_total_t", "first"))
+    assert sums["total"].to_numpy() == pytest.approx(sums["cell"].to_numpy(), rel=1e-12)
+    col = header.index("emission_t") + 1
+    assert trace.cell(3, col).number_format == "#,##0.000"
+    assert trace.cell(3, header.index("factors_sheet_row") + 1).number_format == "0"
+    assert trace.freeze_panes == "A3"
+
+
 def test_workbook_factors_sheet_shows_verification(demo_output):
     ws = openpyxl.load_workbook(demo_output / "inventory.xlsx")["factors"]
     header = [c.value for c in ws[2]]
