@@ -83,6 +83,56 @@ def test_workbook_trace_sheet_leads_to_the_strata_rows(demo_output, demo_result)
     assert trace.freeze_panes == "A3"
 
 
+def test_workbook_splits_the_strata_over_sheets_and_streams_them_like_a_serial_write(tmp_path, demo_result,
+                                                                                    monkeypatch):
+    # With a sheet row limit of 1,001 the demo's strata rows go over several sheets; every row is in
+    # one of them, in order (never truncated). The spooled sheets are deflated by a second thread while
+    # the next is made: the file must be byte for byte the one a serial write gives (a synchronous
+    # stand-in for the thread pool), with the spool on disk and small XML pieces.
+    import concurrent.futures
+
+    import compiler.render.workbook as W
+
+    monkeypatch.setattr(W, "SHEET_ROW_LIMIT", 1001)
+    monkeypatch.setattr(W, "SPOOL_BYTES", 1 << 16)
+    monkeypatch.setattr(W, "ROWS_PER_PIECE", 333)
+    W.write_workbook(demo_result, tmp_path / "threaded.xlsx")
+
+    class Serial:
+        def __init__(self, workers):
+            pass
+
+        def __enter__(self):
+            return self
+
+        def __exit__(self, *exc):
+            return False
+
+        def submit(self, fn, *args):
+            future = concurrent.futures.Future()
+            future.set_result(fn(*args))
+            return future
+
+    monkeypatch.setattr(concurrent.futures, "ThreadPoolExecutor", Serial)
+    W.write_workbook(demo_result, tmp_path / "serial.xlsx")
+    assert (tmp_path / "threaded.xlsx").read_bytes() == (tmp_path / "serial.xlsx").read_bytes()
+
+    wb = openpyxl.load_workbook(tmp_path / "threaded.xlsx", read_only=True)
+    em = demo_result.emissions
+    parts = [n for n in wb.sheetnames if n.startswith("strata")]
+    assert parts == [f"strata_{i + 1}" for i in range(-(-len(em) // 1000))]
+    rows = []
+    for name in parts:
+        sheet = list(wb[name].iter_rows(values_only=True))
+        assert list(sheet[0]) == EXPORT_COLUMNS
+        rows.extend(sheet[1:])
+    assert len(rows) == len(em)
+    got = pd.DataFrame(rows, columns=EXPORT_COLUMNS)
+    assert got["emission_t"].fillna(0).tolist() == em["emission_t"].fillna(0).tolist()
+    assert got["factor_id"].fillna("").tolist() == em["factor_id"].tolist()
+    assert got["input_row"].tolist() == em["input_row"].tolist()
+
+
 def test_workbook_factors_sheet_shows_verification(demo_output):
     ws = openpyxl.load_workbook(demo_output / "inventory.xlsx")["factors"]
     header = [c.value for c in ws[2]]

@@ -382,13 +382,24 @@ def _fix_zip(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] | None, 
 
     A streamed sheet is first spooled (in memory up to SPOOL_BYTES, then on disk) so that its size is
     known before its entry is opened: the zip header (ZIP64 or not) is then the one ``writestr`` writes.
+    A spooled sheet is deflated into the file by a second thread while this one makes the XML of the
+    next (zlib and file writes release the GIL); entries still go into the file in their order, one at
+    a time, so the bytes are those of a serial write.
     """
-    import shutil
     import tempfile
+    from concurrent.futures import ThreadPoolExecutor
 
     src = zipfile.ZipFile(io.BytesIO(data))
     iso = stamp.strftime("%Y-%m-%dT%H:%M:%SZ")
-    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as dst:
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as dst, ThreadPoolExecutor(1) as writer:
+        pending = None  # the entry being written by the second thread (the executor waits for it on exit)
+
+        def wait() -> None:
+            nonlocal pending
+            if pending is not None:
+                done, pending = pending, None
+                done.result()  # re-raises what the writer raised
+
         for info in src.infolist():
             content = src.read(info.filename)
             entry = zipfile.ZipInfo(info.filename, date_time=stamp.timetuple()[:6])
@@ -400,11 +411,13 @@ def _fix_zip(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] | None, 
                 if info.filename == "docProps/core.xml":
                     content = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)",
                                      rb"\g<1>" + iso.encode() + rb"\g<2>", content)
+                wait()
                 dst.writestr(entry, content)
                 continue
             stream = bulk[int(sheet.group(1))]
             split += len(b"</row>")
-            with tempfile.SpooledTemporaryFile(max_size=SPOOL_BYTES) as spool:
+            spool = tempfile.SpooledTemporaryFile(max_size=SPOOL_BYTES)
+            try:
                 spool.write(content[:split])
                 for a in range(stream.first, stream.stop, ROWS_PER_PIECE):
                     part = stream.frame.iloc[a:min(a + ROWS_PER_PIECE, stream.stop)][stream.columns]
@@ -413,6 +426,21 @@ def _fix_zip(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] | None, 
                 spool.write(content[split:])
                 entry.file_size = spool.tell()
                 _set_compression(entry, STREAM_COMPRESSION)
-                spool.seek(0)
-                with dst.open(entry, "w") as out:
-                    shutil.copyfileobj(spool, out, 1 << 20)
+                wait()
+            except BaseException:
+                spool.close()
+                raise
+            pending = writer.submit(_deflate_spool, dst, entry, spool)
+        wait()
+
+
+def _deflate_spool(dst: zipfile.ZipFile, entry: zipfile.ZipInfo, spool) -> None:
+    """Copy a spooled sheet into its zip entry (deflated), then drop the spool."""
+    import shutil
+
+    try:
+        spool.seek(0)
+        with dst.open(entry, "w") as out:
+            shutil.copyfileobj(spool, out, 1 << 20)
+    finally:
+        spool.close()
