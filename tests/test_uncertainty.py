@@ -258,6 +258,17 @@ def test_results_do_not_depend_on_the_chunk_size(demo_result):
         pd.testing.assert_frame_equal(runs[0].trend, other.trend)
 
 
+def test_chunks_are_cut_to_the_memory_budget_without_changing_a_number(demo_result, monkeypatch):
+    # Design: a chunk holds at most the whole blocks whose draws fit CHUNK_BYTES (at least one), so the
+    # memory of a run is bounded on large inventories; as above, the numbers cannot depend on it.
+    wide = U.monte_carlo(demo_result, iterations=4500, seed=3, chunk_size=10_000)
+    assert wide.chunk_size == 10_000  # whole blocks as asked (the demo draws are small)
+    monkeypatch.setattr(U, "CHUNK_BYTES", 1)
+    narrow = U.monte_carlo(demo_result, iterations=4500, seed=3, chunk_size=10_000)
+    assert narrow.chunk_size == U.RNG_BLOCK
+    assert np.array_equal(wide.samples, narrow.samples, equal_nan=True)
+
+
 def test_progress_callback_counts_up_to_the_total(demo_result):
     seen = []
     U.monte_carlo(demo_result, iterations=4500, chunk_size=2000,
