@@ -129,13 +129,20 @@ class FindingLog:
 
     findings: list[Finding] = field(default_factory=list)
     pending: dict = field(default_factory=dict)  # notes a stage aggregates before adding them
+    _seen: set = field(default_factory=set, repr=False, compare=False)  # the findings already in the list
+    _synced: int = field(default=0, repr=False, compare=False)  # how many of them are in _seen
 
     def add(self, severity: str, check: str, message: str, **where) -> None:
         if severity not in SEVERITIES:
             raise ValueError(f"unknown severity {severity!r}")
         finding = Finding(severity, check, message, **where)
-        if finding not in self.findings:  # two pathways needing one factor report it once
+        for earlier in self.findings[self._synced:]:  # appended by extend() or by hand since the last add
+            self._seen.add(earlier)
+        self._synced = len(self.findings)
+        if finding not in self._seen:  # two pathways needing one factor report it once (a set: linear overall)
+            self._seen.add(finding)
             self.findings.append(finding)
+            self._synced += 1
 
     def extend(self, other: Iterable[Finding]) -> None:
         self.findings.extend(other)

@@ -219,16 +219,25 @@ def _analyse(result: InventoryResult, progress) -> None:
         evidence = None
     checks = run_checks(result, QaqcThresholds.from_mapping(result.settings.qaqc), national_totals=national,
                         evidence=evidence)
-    result.finding_list.extend(f for f in checks if f not in result.finding_list)
+    _merge_findings(result.finding_list, checks)
     if any(f.severity == "error" for f in checks):
         raise QaqcError(checks)
     result.uncertainty = run_uncertainty(result, progress=progress)
     result.key_categories = key_categories(result, result.uncertainty, national_totals=national)
     extra = list(result.uncertainty.findings) + list(result.key_categories.findings)
-    result.finding_list.extend(f for f in extra if f not in result.finding_list)
+    _merge_findings(result.finding_list, extra)
     result.findings = pd.DataFrame([f.as_record() for f in result.finding_list] or None,
                                    columns=list(result.findings.columns))
     result.findings["row"] = result.findings["row"].astype("Int64")
+
+
+def _merge_findings(into: list[Finding], new) -> None:
+    """Append the findings of ``new`` not yet in ``into``, in order (a set lookup: linear in both)."""
+    seen = set(into)
+    for finding in new:
+        if finding not in seen:
+            seen.add(finding)
+            into.append(finding)
 
 
 def _check_overrides_against_defaults(emissions, register, overrides, settings, log) -> None:

@@ -1222,9 +1222,5 @@ def run_uncertainty(result, progress: Callable[[int, int], None] | None = None) 
         raise ValueError(f"uncertainty_approach must be 1, 2 or both; got {approach!r}")
     a1 = approach1(result) if approach in ("1", "both") else None
     mc = monte_carlo(result, progress=progress) if approach in ("2", "both") else None
-    findings: list[Finding] = []
-    for part in (a1, mc):
-        for f in (part.findings if part is not None else []):
-            if f not in findings:
-                findings.append(f)
+    findings = list(dict.fromkeys(f for part in (a1, mc) if part is not None for f in part.findings))
     return UncertaintyResult(approach=approach, approach1=a1, monte_carlo=mc, findings=findings)
