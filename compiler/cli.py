@@ -191,7 +191,7 @@ def _scenarios(args) -> int:
         raise InputError("no scenario file: give --scenarios FILE or set [inputs] scenarios in the settings")
     scenarios = load_scenarios(path, result.settings)
     outcome = run_scenarios(result, scenarios)
-    folder = write_scenario_outputs(result, outcome, Path(args.out), report=not args.no_report)
+    folder = write_scenario_outputs(result, outcome, Path(args.out), report=not args.no_report, scenario_file=path)
     if not args.quiet:
         _print_scenarios(result, outcome, folder)
     return EXIT_OK

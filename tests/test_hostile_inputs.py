@@ -724,6 +724,9 @@ def test_killed_compile_leaves_the_previous_output(demo_copy, demo_output, tmp_p
         pytest.fail("the compile finished three times before it could be killed")
     assert proc.returncode == -signal.SIGKILL
     assert digest(out) == before
-    # What a killed run leaves is its temporary folder, named after the output folder.
+    # What a killed run leaves is its temporary folder, named after the output folder, and its lock file
+    # (an empty file, which no longer blocks: the lock ended with the process).
     leftovers = sorted(p.name for p in tmp_path.iterdir() if p.name not in ("out", "demo"))
-    assert all(name.startswith(".out.tmp-") for name in leftovers), leftovers
+    assert all(name.startswith(".out.tmp-") or name == ".out.lock" for name in leftovers), leftovers
+    completed = subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    assert completed.returncode == 0, completed.stderr

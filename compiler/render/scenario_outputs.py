@@ -12,7 +12,7 @@ from openpyxl import Workbook
 
 from ..resources import resource_dir
 from . import charts
-from .outputs import atomic_folder
+from .outputs import atomic_folder, input_files
 from .report import RestrictedFetcher
 from .workbook import _fix_zip, _sheet, _records, FORMATS
 
@@ -55,7 +55,8 @@ def scenario_charts(outcome) -> dict[str, str]:
     }
 
 
-def write_scenario_outputs(result, outcome, out_dir: Path, report: bool = True) -> Path:
+def write_scenario_outputs(result, outcome, out_dir: Path, report: bool = True, scenario_file: Path | None = None
+                           ) -> Path:
     def fill(tmp: Path) -> None:
         outcome.climate.to_csv(tmp / "scenario_climate.csv", index=False, lineterminator="\n")
         em = outcome.emissions.groupby(["scenario", "year", "region", "soil_status", "pathway", "gas"], sort=False,
@@ -68,7 +69,7 @@ def write_scenario_outputs(result, outcome, out_dir: Path, report: bool = True) 
         if report:
             _report(result, outcome, tmp)
 
-    return atomic_folder(Path(out_dir), fill)
+    return atomic_folder(Path(out_dir), fill, inputs=[*input_files(result.settings), scenario_file])
 
 
 def _workbook(result, outcome, em, areas, path: Path) -> None:
