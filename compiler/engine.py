@@ -11,26 +11,14 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from . import equations
 from .errors import FindingLog
 from .factors import KEYS, QUANTITIES, FactorLibrary, apply_overrides, override_rows_to_register, resolve_defaults
 from .matching import distinct_codes, missing_distinctions
 from .readers import MAX_LISTED, ROW
+from .row_model import ROW_MODELS
 from .settings import Settings
 from .units import basis_ratio, conversion_factor, tonnes_of_gas_per_unit
 
-# pathway -> (gas, main quantity, secondary quantity or "")
-PATHWAYS: dict[str, tuple[str, str, str]] = {
-    "co2_onsite": ("CO2", "ef_co2_c_onsite", ""),
-    "co2_doc": ("CO2", "ef_co2_c_doc", ""),
-    "ch4_soil": ("CH4", "ef_ch4_soil", "frac_ditch"),
-    "ch4_ditch": ("CH4", "ef_ch4_ditch", "frac_ditch"),
-    "n2o_soil": ("N2O", "ef_n2o_n_soil", ""),
-    "fire_co2": ("CO2", "ef_fire_co2_c", "fuel_consumption"),
-    "fire_ch4": ("CH4", "ef_fire_ch4", "fuel_consumption"),
-    "fire_co": ("CO", "ef_fire_co", "fuel_consumption"),
-    "fire_n2o": ("N2O", "", ""),
-}
 STRATUM_COLUMNS = ["year", "region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth",
                    "subtype", "remaining_or_converted", "previous_land_use"]
 RESULT_COLUMNS = [*STRATUM_COLUMNS, "fire_type", "pathway", "gas", "area_ha", "area_basis_ha", "factor_id",
@@ -234,7 +222,8 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
              overrides: pd.DataFrame, lookup: pd.DataFrame, register: pd.DataFrame, log: FindingLog,
              convention: str, area_column: str = "area_ha", cache: dict | None = None) -> pd.DataFrame:
     pathway = cov["pathway"]
-    gas, main_q, second_q = PATHWAYS[pathway]
+    model = ROW_MODELS[pathway]
+    gas, main_q, second_q = model.gas, model.factor_quantity, model.parameter_quantity
     if cov["status"] != "estimated":
         out = _base_frame(rows, cov, pathway, gas, area_column)
         out["notation_key"], out["notation_reason"] = cov["status"], cov["reason"]
@@ -292,10 +281,10 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
 
     values = out["factor_value"].to_numpy()
     units = out["factor_unit"]
-    if pathway.startswith("fire_"):
+    if model.fire:
         species_unit = QUANTITIES[main_q][1]  # e.g. g CO2-C kg-1 dm
         gef = values * _unit_scale(units, species_unit, convention)
-        basis_t = equations.fire_emission(area, second, gef)
+        basis_t = model.evaluate(area, second, gef)  # Eq. 2.8
         basis_species = species_unit.split()[1]
         out["area_basis_ha"] = area
         out["emission_basis"] = f"t {basis_species}"
@@ -307,13 +296,8 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
         out["conversion"] = 1e-3 * _unit_scale(units, species_unit, convention) * fuel_scale * to_gas
         return out
 
-    if pathway == "ch4_soil":
-        frac = second if use_secondary else np.zeros(len(out))
-        area_basis = area * (1.0 - frac)
-    elif pathway == "ch4_ditch":
-        area_basis = area * second
-    else:
-        area_basis = area
+    # The pathway's equation (Eq. 2.3-2.7): with a factor of one it gives the area the factor rests on.
+    area_basis = model.area_basis(area, second)
     out["area_basis_ha"] = area_basis
     # t of gas per (ha x factor unit), and the element basis the factor is printed on: computed once per
     # distinct unit (a handful), then gathered onto the rows by unit code.
@@ -323,7 +307,7 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
     to_basis = np.array([t / basis_ratio(u.split()[1], gas, convention) for u, t in zip(unit_uniques, per_unit)],
                         dtype=float)[unit_codes]
     basis_name = "t " + pd.Series(np.array([u.split()[1] for u in unit_uniques], dtype=object))
-    product = area_basis * values
+    product = model.evaluate(area, second, values)
     out["emission_basis"] = _gather(basis_name, unit_codes, out.index)
     out["emission_basis_t"] = product * to_basis
     out["emission_t"] = product * to_gas

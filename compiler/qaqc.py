@@ -50,7 +50,8 @@ from typing import Callable, NamedTuple
 import numpy as np
 import pandas as pd
 
-from .engine import PATHWAYS, STRATUM_COLUMNS
+from .engine import STRATUM_COLUMNS
+from .row_model import ROW_MODELS, by_pathway
 from .errors import Finding, InputError
 from .factors import QUANTITIES, unit_kind_ok
 from .readers import MAX_LISTED
@@ -601,8 +602,9 @@ def check_row_arithmetic(result, thresholds: QaqcThresholds) -> list[Finding]:
     Recomputed on every estimate row, vectorised: ``emission_t = area_basis_ha x factor_value x
     conversion`` (fires: ``area_ha x parameter_value x factor_value x conversion``); outside fires,
     ``conversion`` is the unit's t of gas per (ha x unit) (:func:`compiler.units.tonnes_of_gas_per_unit`)
-    and ``area_basis_ha`` is the area, times (1 - Frac_ditch) for ch4_soil and Frac_ditch for
-    ch4_ditch (Eq. 2.6); and ``co2eq_t = emission_t x GWP``.
+    and ``area_basis_ha`` is what the pathway's equation gives with a factor of one
+    (:meth:`compiler.row_model.RowModel.area_basis`: the area, times (1 - Frac_ditch) for ch4_soil and
+    Frac_ditch for ch4_ditch, Eq. 2.6); and ``co2eq_t = emission_t x GWP``.
     """
     est = _estimates(result)
     if est.empty:
@@ -614,9 +616,9 @@ def check_row_arithmetic(result, thresholds: QaqcThresholds) -> list[Finding]:
     param = est["parameter_value"].to_numpy(dtype=float)
     value = est["factor_value"].to_numpy(dtype=float)
     conversion = est["conversion"].to_numpy(dtype=float)
-    pathway = est["pathway"].to_numpy()
-    frac = np.nan_to_num(param)
-    basis = np.where(pathway == "ch4_soil", area * (1.0 - frac), np.where(pathway == "ch4_ditch", area * frac, area))
+    # The area the factor rests on, from the pathway's own equation (compiler.row_model).
+    basis = by_pathway(est["pathway"].to_numpy(), lambda model, rows: model.area_basis(area[rows],
+                                                                                     np.nan_to_num(param[rows])))
     expected_emission = np.where(fire, area * param * value * conversion,
                                  est["area_basis_ha"].to_numpy(dtype=float) * value * conversion)
     units = est["factor_unit"]
@@ -999,7 +1001,7 @@ def ne_upper_bound_per_ha(pathway: str, stratum: dict, library,
     NaN when no shipped table has a factor for the pathway (e.g. N2O of organic-soil fires).
     ``convention`` is the run's ``[method] mass_ratios``.
     """
-    gas, quantity, _ = PATHWAYS[pathway]
+    gas, quantity = ROW_MODELS[pathway].gas, ROW_MODELS[pathway].factor_quantity
     register = library.register
     if not quantity or quantity not in set(register["quantity"]):
         return np.nan, f"no shipped factor for {pathway} in any factor set"

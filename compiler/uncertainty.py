@@ -43,6 +43,7 @@ import pandas as pd
 
 from .errors import CompilerError, Finding
 from .factors import QUANTITIES
+from .row_model import by_pathway
 
 Z_95 = 1.959963984540054  # 97.5th percentile of the standard normal ("1.96" in [1])
 SYMMETRY_TOLERANCE = 0.10  # half-widths within 10 % of the larger count as symmetric (printed rounding)
@@ -459,13 +460,11 @@ def _build_model(result) -> _Model:
     uncertain = set(inputs.loc[inputs["distribution"] != "fixed", "factor_id"])
 
     # Row model: emission = coefficient x factor x (g0 + g1 x parameter) x area multiplier.
-    pathway = est["pathway"].astype(str)
-    has_param = est["parameter_id"] != ""
-    fire = pathway.str.startswith("fire_").to_numpy()
-    soil = ((pathway == "ch4_soil") & has_param).to_numpy()
-    ditch = ((pathway == "ch4_ditch") & has_param).to_numpy()
-    g0 = np.where(fire | ditch, 0.0, 1.0)
-    g1 = np.select([fire | ditch, soil], [1.0, -1.0], 0.0)
+    # g0 and g1 come from each pathway's own equation (compiler.row_model), which is linear in the parameter.
+    pathway = est["pathway"].astype(str).to_numpy()
+    has_param = (est["parameter_id"] != "").to_numpy()
+    g0 = np.where(has_param, by_pathway(pathway, lambda model, rows: model.parameter_term(0.0)), 1.0)
+    g1 = np.where(has_param, by_pathway(pathway, lambda model, rows: model.parameter_term(1.0)) - g0, 0.0)
     p_value = est["parameter_value"].to_numpy(float)
     g_central = np.where(g1 != 0, g0 + g1 * np.nan_to_num(p_value), 1.0)
     coef = est["area_ha"].to_numpy(float) * est["conversion"].to_numpy(float)

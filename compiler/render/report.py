@@ -17,7 +17,7 @@ import pandas as pd
 from jinja2 import Environment, FileSystemLoader, select_autoescape
 
 from ..categories import NOTATION_KEYS
-from ..engine import PATHWAYS
+from ..row_model import ROW_MODELS
 from ..resources import resource_dir
 from ..units import basis_ratio
 from . import charts
@@ -81,7 +81,7 @@ EQUATIONS = {
                     ("L<sub>fire</sub>", "emission of the gas, or of CO2-C for CO2", "t")],
     },
 }
-METHOD_OF_PATHWAY = {p: ("fire" if p.startswith("fire_") else p) for p in PATHWAYS}
+METHOD_OF_PATHWAY = {p: ("fire" if p.startswith("fire_") else p) for p in ROW_MODELS}
 
 
 class RestrictedFetcher:
