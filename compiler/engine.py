@@ -293,7 +293,8 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
         out["emission_t"] = basis_t * to_gas
         # emission_t = area_ha x parameter_value (fuel) x factor_value x conversion
         fuel_scale = second / np.where(out["parameter_value"].to_numpy() == 0, 1.0, out["parameter_value"].to_numpy())
-        out["conversion"] = 1e-3 * _unit_scale(units, species_unit, convention) * fuel_scale * to_gas
+        per_unit_inputs = model.evaluate(1.0, 1.0, 1.0)  # Eq. 2.8 on one of each input: the 10^-3 (g kg-1 -> t t-1)
+        out["conversion"] = per_unit_inputs * _unit_scale(units, species_unit, convention) * fuel_scale * to_gas
         return out
 
     # The pathway's equation (Eq. 2.3-2.7): with a factor of one it gives the area the factor rests on.

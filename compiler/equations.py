@@ -45,27 +45,6 @@ def doc_co2_c(area_ha, ef_doc_t_co2_c_per_ha):
     return np.asarray(area_ha, dtype=float) * np.asarray(ef_doc_t_co2_c_per_ha, dtype=float)
 
 
-def doc_emission_factor(doc_flux_natural_t_c_per_ha, delta_doc, frac_doc_co2):
-    """Emission factor for off-site CO2 from DOC [t CO2-C ha-1 yr-1].
-
-    Parameters
-    ----------
-    doc_flux_natural_t_c_per_ha : array_like
-        DOC flux of undrained organic soil [t C ha-1 yr-1].
-    delta_doc : array_like
-        Proportional increase of the DOC flux caused by drainage [fraction];
-        0 for rewetted soils.
-    frac_doc_co2 : array_like
-        Fraction of DOC converted to CO2 downstream [fraction].
-
-    Notes
-    -----
-    Eq. 2.5 in [WS2013]: EF_DOC = DOC_FLUX_NATURAL x (1 + dDOC_DRAINAGE) x Frac_DOC-CO2.
-    """
-    return (np.asarray(doc_flux_natural_t_c_per_ha, dtype=float) * (1.0 + np.asarray(delta_doc, dtype=float))
-            * np.asarray(frac_doc_co2, dtype=float))
-
-
 def ch4_land(area_ha, frac_ditch, ef_ch4_land_kg_per_ha):
     """CH4 from the land surface of drained organic soil, ditches excluded [kg CH4 yr-1].
 

@@ -463,10 +463,10 @@ def _build_model(result) -> _Model:
     # g0 and g1 come from each pathway's own equation (compiler.row_model), which is linear in the parameter.
     pathway = est["pathway"].astype(str).to_numpy()
     has_param = (est["parameter_id"] != "").to_numpy()
-    g0 = np.where(has_param, by_pathway(pathway, lambda model, rows: model.parameter_term(0.0)), 1.0)
+    g0 = by_pathway(pathway, lambda model, rows: model.parameter_term(0.0))
     g1 = np.where(has_param, by_pathway(pathway, lambda model, rows: model.parameter_term(1.0)) - g0, 0.0)
     p_value = est["parameter_value"].to_numpy(float)
-    g_central = np.where(g1 != 0, g0 + g1 * np.nan_to_num(p_value), 1.0)
+    g_central = g0 + g1 * np.nan_to_num(p_value)
     coef = est["area_ha"].to_numpy(float) * est["conversion"].to_numpy(float)
     f_value = est["factor_value"].to_numpy(float)
     modelled = coef * f_value * g_central
