@@ -118,6 +118,12 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region,
                          surrogates, settings.fill_by_land_use)
     log.raise_if_errors()
+    # One order whatever the order of the input rows, so that every sum below adds in the same order and
+    # the outputs do not depend on how the rows were sorted in the file (the index still names the record).
+    activity = activity.iloc[np.lexsort([_sort_codes(activity[k]) for k in reversed(["year", *SERIES_KEYS])])]
+    if fires is not None and not fires.empty:
+        fire_keys = [k for k in ["year", *SERIES_KEYS, "fire_type", "burned_ha"] if k in fires]
+        fires = fires.iloc[np.lexsort([_sort_codes(fires[k]) for k in reversed(fire_keys)])]
 
     engine = compute(activity, fires, overrides, library, settings, log)
     log.raise_if_errors()
@@ -137,7 +143,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     emissions["input_file"] = emissions["input_file"].map(names)  # once per distinct file, not per row
     held = [emissions]
     del emissions  # _sorted takes the table out of ``held``, so that each reordered column frees its original
-    emissions = _sorted(held, ["year", "region", "category_code", "pathway", "input_row"])
+    emissions = _sorted(held, ["year", "region", "category_code", "pathway", *SERIES_KEYS[1:], "fire_type",
+                               "area_ha", "input_row"])
     categories = category_table(emissions, library, settings.years)
 
     _check_area_balance(activity, emissions, log)
