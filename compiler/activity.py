@@ -15,7 +15,8 @@ rather than a number (each named in its message):
   years must lie within the inventory years); a year is a whole number, ``2020.0``
   is read as 2020 and ``2020.5`` refused;
 - a name or other short text above 200 characters, a citation or note above 2,000;
-  control characters (and, in names, tabs and line breaks) in any text;
+  control characters (and, in names, tabs and line breaks) in any text; text that starts with
+  ``=``, ``+``, ``-`` or ``@`` (a spreadsheet program would run it as a formula from a CSV we write);
 - numbers with thousands separators (``1,234``, ``1 234``; in a semicolon file
   ``1.234``, which could mean either 1234 or 1.234).
 """
@@ -48,6 +49,10 @@ AREA_BOUND_NOTE = " ha (the world's peatlands cover about 4e8 ha)"
 _CONTROLS = "\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069"
 MULTILINE_CONTROL = f"[{_CONTROLS}]"
 LINE_CONTROL = f"[{_CONTROLS}\t\n\r]"
+# Text that a spreadsheet program evaluates when it opens a CSV file: refused in every text cell (the
+# CSV files we write carry names, ids, citations and notes as given, so they never start a formula).
+FORMULA_START = r"[=+\-@]"
+FORMULA_TEXT = "=, +, - or @"
 
 HEADER_ALIASES = {
     "area": "area_ha", "area_(ha)": "area_ha", "hectares": "area_ha", "burned_area_ha": "burned_ha",
@@ -279,6 +284,12 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
             check.rows("error", "text", f"{col.name} holds control characters", raw[control], col.name, text,
                        "printable text" + ("" if col.multiline else " on one line"))
             bad_rows |= control.to_numpy()
+            # A cell that starts like a formula would be run by a spreadsheet program that opens a CSV we write.
+            formula = stripped.str.match(FORMULA_START)
+            check.rows("error", "text", f"{col.name} starts with {FORMULA_TEXT}, which a spreadsheet program runs "
+                       "as a formula when it opens a CSV file", raw[formula], col.name, text,
+                       "text that starts with a letter, a digit or a bracket (reword, or drop the first character)")
+            bad_rows |= formula.to_numpy()
             out[col.name] = stripped.where(~blank, col.default)
         else:
             numbers = _parse_numbers(stripped, decimal_comma)
