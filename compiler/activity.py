@@ -30,8 +30,9 @@ import numpy as np
 import pandas as pd
 
 from .errors import FindingLog
-from .factors import KEYS, QUANTITIES, override_weight, unit_kind_ok, check_override_conflicts
+from .factors import QUANTITIES, override_weight, unit_kind_ok, check_override_conflicts
 from .readers import MAX_LISTED, ROW, printable, read_table
+from .schema import LAND_KEYS, STRATUM_KEYS
 from .settings import Settings
 from .vocabulary import KEY_COLUMNS, TERMS, describe_accepted, normalise_column, normalise_text
 
@@ -154,14 +155,12 @@ SURROGATE_COLUMNS = [
     Column("note", "text", max_length=MAX_NOTE_CHARS, multiline=True),
 ]
 SURROGATE_METHODS = ("overlap", "surrogate")
-SURROGATE_KEYS = ["region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype",
-                  "remaining_or_converted"]
+SURROGATE_KEYS = [*LAND_KEYS, "remaining_or_converted"]  # what a driver series can be specific to
 # Override quantities that cannot be negative (emission factors can: removals, CH4 uptake).
 NON_NEGATIVE = ("fuel_consumption", "ef_fire_co2_c", "ef_fire_ch4", "ef_fire_co", "doc_flux_natural",
                 "delta_doc_drainage", "frac_ditch", "frac_doc_co2")
 PRINCIPLES = ("transparency", "accuracy", "consistency", "comparability", "completeness")
 REVIEW_STATUS = ("resolved", "in_progress", "open")
-STRATUM_KEYS = ["year", "region", *KEYS[:-1], "remaining_or_converted", "previous_land_use"]
 
 
 def _header(name: str) -> str:

@@ -16,16 +16,9 @@ from .factors import KEYS, QUANTITIES, FactorLibrary, apply_overrides, override_
 from .matching import distinct_codes, missing_distinctions
 from .readers import MAX_LISTED, ROW
 from .row_model import ROW_MODELS
+from .schema import RESULT_COLUMNS, STRATUM_KEYS
 from .settings import Settings
 from .units import basis_ratio, conversion_factor, tonnes_of_gas_per_unit
-
-STRATUM_COLUMNS = ["year", "region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth",
-                   "subtype", "remaining_or_converted", "previous_land_use"]
-RESULT_COLUMNS = [*STRATUM_COLUMNS, "fire_type", "pathway", "gas", "area_ha", "area_basis_ha", "factor_id",
-                  "default_factor_id", "factor_value", "factor_unit", "tier", "parameter_id", "parameter_value", "parameter_unit",
-                  "emission_basis", "emission_basis_t", "emission_t", "conversion", "notation_key", "notation_reason", "equation",
-                  "activity_source", "input_file", "input_row", "record_id"]
-
 
 @dataclass
 class EngineResult:
@@ -196,7 +189,7 @@ def compute(activity: pd.DataFrame, fires: pd.DataFrame, overrides: pd.DataFrame
 
 def _base_frame(rows: pd.DataFrame, cov: pd.Series, pathway: str, gas: str, area_column: str) -> pd.DataFrame:
     """The stratum, trace and blank result columns of one pathway, one row per row of ``rows``."""
-    columns = {c: rows[c] if c in rows else "" for c in STRATUM_COLUMNS}
+    columns = {c: rows[c] if c in rows else "" for c in STRATUM_KEYS}
     columns["fire_type"] = rows["fire_type"] if "fire_type" in rows else ""
     columns["pathway"], columns["gas"] = pathway, gas
     columns["area_ha"] = rows[area_column].astype(float)

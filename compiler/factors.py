@@ -24,6 +24,7 @@ import pandas as pd
 from .errors import CompilerError, Finding
 from .matching import most_specific
 from .resources import resource_dir
+from .schema import FACTOR_KEYS
 from .units import CANONICAL_UNITS, conversion_factor, parse_unit
 
 # quantity -> (description, kind of unit accepted, bounds of the value or None)
@@ -43,7 +44,7 @@ QUANTITIES: dict[str, tuple[str, str, tuple[float, float] | None]] = {
     "ef_fire_co": ("CO emitted per mass of organic soil burnt (Eq. 2.8, Gef)", "g CO kg-1 dm", None),
 }
 
-KEYS = ["climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype", "fire_type"]
+KEYS = FACTOR_KEYS  # the stratum keys a factor row can name (compiler.schema)
 # A subtype outweighs everything else: a plantation row beats the land-use row.
 WEIGHTS = {"climate_zone": 1, "soil_status": 1, "land_use": 4, "nutrient_status": 2, "drainage_depth": 2,
            "subtype": 16, "fire_type": 2}

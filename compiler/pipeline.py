@@ -23,20 +23,9 @@ from .errors import Finding, FindingLog, InputError, QaqcError
 from .factors import FactorLibrary, file_sha256, load_library
 from .metrics import co2_equivalent, gwp_table
 from .settings import Settings, load_settings
-from .timeseries import SERIES_KEYS, fill_gaps
+from .schema import FINDING_COLUMNS, GAP_FILL_COLUMNS, SERIES_KEYS
+from .timeseries import fill_gaps
 from .units import conversion_factor
-
-EXPORT_COLUMNS = [
-    "year", "region", "category_code", "land_use", "climate_zone", "soil_status", "nutrient_status",
-    "drainage_depth", "subtype", "pathway", "gas", "area_ha", "factor_id", "factor_value", "factor_unit", "tier",
-    "emission_t", "co2eq_t",
-    "remaining_or_converted", "previous_land_use", "fire_type", "land_category_code", "area_basis_ha",
-    "parameter_id", "parameter_value", "parameter_unit", "emission_basis", "emission_basis_t", "conversion", "default_factor_id",
-    "notation_key", "notation_reason", "equation", "activity_source", "input_file", "input_row",
-]
-
-GAP_FILL_COLUMNS = [*SERIES_KEYS, "year", "area_ha", "activity_source", "fill_basis"]
-
 
 @dataclass
 class InventoryResult:
@@ -164,8 +153,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     hashes = {name: file_sha256(path) for name, path in settings.input_paths().items()}
     hashes.update({f"factor_tables/{k}": v for k, v in library.hashes().items()})
     findings = pd.DataFrame([f.as_record() for f in log.findings] or None,
-                            columns=["severity", "check", "file", "sheet", "row", "column", "message", "found",
-                                     "expected"])
+                            columns=FINDING_COLUMNS)
     findings["row"] = findings["row"].astype("Int64")
     compile_date = settings.compile_date or _dt.date.today().isoformat()
     activity = activity[~activity["_bad"]].astype({"year": "int64"})

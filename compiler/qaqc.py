@@ -50,7 +50,9 @@ from typing import Callable, NamedTuple
 import numpy as np
 import pandas as pd
 
-from .engine import STRATUM_COLUMNS
+from .schema import CELL_KEYS as CELL
+from .schema import FINDING_COLUMNS, LAND_KEYS
+from .schema import SERIES_KEYS as STRATUM_SERIES_KEYS
 from .row_model import ROW_MODELS, by_pathway
 from .errors import Finding, InputError
 from .factors import QUANTITIES, unit_kind_ok
@@ -59,13 +61,11 @@ from .units import basis_ratio, parse_unit, tonnes_of_gas_per_unit
 
 LAND_SECTOR_PREFIX = "3.B"  # 2006 IPCC Guidelines category 3.B Land: "the land sector" of the insignificance rule
 EVIDENCE = ("measured", "mapped", "statistics", "assumed")
-FINDING_COLUMNS = ["severity", "check", "file", "sheet", "row", "column", "message", "found", "expected"]
-# A stratum as the area checks follow it through time: its land, without the conversion class, so that land
-# passing from "converted" to "remaining" after the transition period does not read as a jump.
-LAND_KEYS = ["region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype"]
+# The area checks follow a stratum through time as LAND_KEYS: its land, without the conversion class, so
+# that land passing from "converted" to "remaining" after the transition period does not read as a jump.
 REWETTED_WORDS = ("climate_zone", "land_use", "nutrient_status", "drainage_depth", "subtype")
-SERIES_KEYS = [c for c in STRATUM_COLUMNS if c != "year"] + ["fire_type", "pathway"]
-CELL = ["category_code", "gas", "year"]
+# One series of result rows: a stratum, a fire type and a pathway, over the years.
+ROW_SERIES_KEYS = [*STRATUM_SERIES_KEYS, "fire_type", "pathway"]
 
 
 # --- thresholds ---------------------------------------------------------------------------------
@@ -678,17 +678,17 @@ def check_override_validity(result, thresholds: QaqcThresholds) -> list[Finding]
     file = str(result.settings.overrides) if result.settings.overrides else ""
     out = []
     for column in ("factor_id", "parameter_id"):  # main factor, secondary parameter
-        uses = em.loc[em[column].isin(ov.index).to_numpy(dtype=bool), SERIES_KEYS]
+        uses = em.loc[em[column].isin(ov.index).to_numpy(dtype=bool), ROW_SERIES_KEYS]
         if uses.empty:
             continue
         series = uses.drop_duplicates()
         est = _estimates(result)
-        rows = est[SERIES_KEYS + ["year", column]].merge(series, on=SERIES_KEYS)
+        rows = est[ROW_SERIES_KEYS + ["year", column]].merge(series, on=ROW_SERIES_KEYS)
         rows["_ov"] = rows[column].isin(ov.index)
-        span = rows[rows["_ov"]].groupby(SERIES_KEYS).agg(
+        span = rows[rows["_ov"]].groupby(ROW_SERIES_KEYS).agg(
             _lo=("year", "min"), _hi=("year", "max"),
             _ids=(column, lambda s: ", ".join(sorted(set(s))))).reset_index()
-        default = rows[~rows["_ov"]].merge(span, on=SERIES_KEYS)
+        default = rows[~rows["_ov"]].merge(span, on=ROW_SERIES_KEYS)
         if default.empty:
             continue
         default["_gap"] = (default["year"] > default["_lo"]) & (default["year"] < default["_hi"])
@@ -696,7 +696,7 @@ def check_override_validity(result, thresholds: QaqcThresholds) -> list[Finding]
         group_keys = ["region", "pathway", "_ids", column, "_gap", "_quantity"]
         for (region, pathway, ids, used, gap, quantity), g in default.groupby(group_keys, sort=True):
             years = _years_text(g["year"])
-            strata = sorted({_describe(r) for r in g[SERIES_KEYS].drop_duplicates().to_dict("records")})
+            strata = sorted({_describe(r) for r in g[ROW_SERIES_KEYS].drop_duplicates().to_dict("records")})
             valid = "; ".join(f"{i} {int(ov.at[i, 'first_year'])}-{int(ov.at[i, 'last_year'])}"
                               for i in ids.split(", "))
             if gap:
@@ -814,7 +814,7 @@ def check_duplicated_strata(result, thresholds: QaqcThresholds) -> list[Finding]
     One finding per duplicated stratum and year, naming the pathways and input rows concerned.
     """
     em = result.emissions
-    keys = ["year", *SERIES_KEYS]
+    keys = ["year", *ROW_SERIES_KEYS]
     dup = em[em.duplicated(keys, keep=False)]
     if dup.empty:
         return []
@@ -1180,7 +1180,7 @@ def check_assumptions(result, thresholds: QaqcThresholds, evidence: pd.Series | 
         f"({share_last:.1%} in {result.settings.last_year}); {unknown:.1%} have no evidence given",
         **where, column="evidence", found=f"{share:.4%}"))
     if assumed.any():
-        keys = [c for c in STRATUM_COLUMNS if c != "year"]
+        keys = list(STRATUM_SERIES_KEYS)
         sized = est[assumed].assign(_m=magnitude[assumed]).groupby(keys, as_index=False).agg(
             size=("_m", "sum"), first_row=("input_row", _first_input_row), years=("year", lambda s: _years_text(s)))
         top = sized.loc[sized["size"].idxmax()]

@@ -23,9 +23,9 @@ import numpy as np
 import pandas as pd
 
 from .errors import Finding, InputError
+from .schema import ROW_KEYS
 
-MATCH_KEYS = ["year", "region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth",
-              "subtype", "remaining_or_converted", "previous_land_use", "fire_type", "pathway", "gas"]
+MATCH_KEYS = ROW_KEYS  # rows of two exports are matched on every key of a result row (compiler.schema)
 PARTS = ["activity_change", "factor_change", "strata_added", "strata_removed", "allocation_change"]
 NEEDED = set(MATCH_KEYS) | {"category_code", "area_ha", "emission_t", "co2eq_t", "notation_key", "factor_id"}
 

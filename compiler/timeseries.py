@@ -25,10 +25,9 @@ import pandas as pd
 
 from .errors import FindingLog
 from .readers import ROW
+from .schema import SERIES_KEYS
 
 FILL_MODES = ("none", "interpolate", "extrapolate", "both")
-SERIES_KEYS = ["region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype",
-               "remaining_or_converted", "previous_land_use"]
 SOURCES = ("reported", "interpolated", "extrapolated", "overlap", "surrogate")
 
 

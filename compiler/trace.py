@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import Finding, InputError
-from .timeseries import SERIES_KEYS
+from .schema import SERIES_KEYS
 
 
 def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:

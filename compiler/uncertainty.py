@@ -44,6 +44,7 @@ import pandas as pd
 from .errors import CompilerError, Finding
 from .factors import QUANTITIES
 from .row_model import by_pathway
+from .schema import SERIES_KEYS
 
 Z_95 = 1.959963984540054  # 97.5th percentile of the standard normal ("1.96" in [1])
 SYMMETRY_TOLERANCE = 0.10  # half-widths within 10 % of the larger count as symmetric (printed rounding)
@@ -53,8 +54,7 @@ DEFAULT_CHUNK = 2000  # iterations per chunk at most
 CHUNK_BYTES = 512 * 1024 ** 2  # a chunk is cut to the whole blocks whose draws fit in this working memory
 ROW_SLICE = 2048  # estimate rows per slice within a chunk (bounds memory on large inventories)
 FRACTION_QUANTITIES = tuple(q for q, (_, unit, bounds) in QUANTITIES.items() if bounds == (0.0, 1.0))
-STRATUM_DRAW_KEYS = ["input_file", "region", "climate_zone", "land_use", "soil_status", "nutrient_status",
-                     "drainage_depth", "subtype", "remaining_or_converted", "previous_land_use", "fire_type"]
+STRATUM_DRAW_KEYS = ["input_file", *SERIES_KEYS, "fire_type"]  # one area draw: a file's stratum series
 
 METHOD_RULES: dict[str, str] = {
     "asymmetric_interval":

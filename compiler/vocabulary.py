@@ -12,6 +12,8 @@ import difflib
 
 import pandas as pd
 
+from .schema import TERM_KEYS
+
 BLANK = ""
 
 TERMS: dict[str, tuple[str, ...]] = {
@@ -37,7 +39,7 @@ ALIASES: dict[str, dict[str, str]] = {
     "subtype": {"rice": "paddy_rice", "peat_extraction_site": "peat_extraction"},
 }
 
-KEY_COLUMNS = ("climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth", "subtype")
+KEY_COLUMNS = tuple(TERM_KEYS)  # compiler.schema
 
 
 def normalise_text(value) -> str:

@@ -1,6 +1,5 @@
 """The command line on the demo and on bad inputs: exact messages, exit code 2, nothing written."""
 
-import shutil
 import subprocess
 import sys
 from pathlib import Path

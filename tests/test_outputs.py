@@ -10,7 +10,7 @@ from hypothesis import given, settings, strategies as st
 from frictionless import validate  # reference implementation of the Table Schema standard
 
 from compiler import compile_inventory
-from compiler.pipeline import EXPORT_COLUMNS
+from compiler.schema import EXPORT_COLUMNS
 
 
 def sha(path):

@@ -5,7 +5,7 @@ import pandas as pd
 import pytest
 
 from compiler import compile_inventory
-from compiler.recalculations import PARTS, compare
+from compiler.recalculations import compare
 from compiler.trace import trace_text
 
 

@@ -1,6 +1,5 @@
 """The report: sections, totals equal to the workbook, factor traceability, cautions, archive, safety."""
 
-import io
 import re
 
 import openpyxl

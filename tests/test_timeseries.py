@@ -1,6 +1,5 @@
 """Gap filling of the area series (2006 IPCC Guidelines Vol. 1 Ch. 5) against hand-computed series."""
 
-import numpy as np
 import pandas as pd
 import pytest
 

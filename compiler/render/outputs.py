@@ -43,7 +43,7 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
     """
 
     def fill(tmp: Path) -> None:
-        from ..pipeline import EXPORT_COLUMNS
+        from ..schema import EXPORT_COLUMNS
 
         job = ReportJob.start(result, tmp) if report and not archive and _can_fork(parallel) else None
         try:

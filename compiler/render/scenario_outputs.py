@@ -12,6 +12,7 @@ from openpyxl import Workbook
 
 from ..resources import resource_dir
 from . import charts
+from ..schema import FINDING_COLUMNS
 from .outputs import atomic_folder, input_files
 from .report import RestrictedFetcher
 from .workbook import _fix_zip, _sheet, _records, FORMATS
@@ -86,7 +87,7 @@ def _workbook(result, outcome, em, areas, path: Path) -> None:
                for c in cols if pd.api.types.is_float_dtype(frame[c])}
         _sheet(wb, title, cols, _records(frame, cols), fmt, notes=notes if title == "summary" else ())
     findings = pd.DataFrame([f.as_record() for f in outcome.findings] or None,
-                            columns=["severity", "check", "file", "sheet", "row", "column", "message", "found", "expected"])
+                            columns=FINDING_COLUMNS)
     _sheet(wb, "findings", list(findings.columns), _records(findings, list(findings.columns)), widths={"message": 80})
     stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00")
     wb.properties.created = stamp

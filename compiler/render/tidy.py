@@ -10,49 +10,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-# column -> (type, unit, description)
-FIELDS: dict[str, tuple[str, str, str]] = {
-    "year": ("integer", "", "inventory year"),
-    "region": ("string", "", "region (district) as given in the activity data"),
-    "category_code": ("string", "", "2006 IPCC category the row is reported under"),
-    "land_use": ("string", "", "land-use category of the stratum"),
-    "climate_zone": ("string", "", "climate zone: boreal | temperate | tropical"),
-    "soil_status": ("string", "", "drained | rewetted"),
-    "nutrient_status": ("string", "", "rich | poor | blank"),
-    "drainage_depth": ("string", "", "deep | shallow | blank"),
-    "subtype": ("string", "", "peat_extraction, plantation type, paddy_rice, or blank"),
-    "pathway": ("string", "", "co2_onsite | co2_doc | ch4_soil | ch4_ditch | n2o_soil | fire_co2 | fire_ch4 | fire_co | fire_n2o"),
-    "gas": ("string", "", "CO2 | CH4 | N2O | CO"),
-    "area_ha": ("number", "ha", "area of the stratum (burnt area for fire pathways)"),
-    "factor_id": ("string", "", "id of the emission factor in the factor register"),
-    "factor_value": ("number", "", "value of the emission factor, in factor_unit"),
-    "factor_unit": ("string", "", "unit of factor_value"),
-    "tier": ("string", "", "Tier 1 default, or the tier of an override"),
-    "emission_t": ("number", "t", "emission in tonnes of the gas (negative: removal)"),
-    "co2eq_t": ("number", "t CO2-eq", "emission_t x GWP100 of the run's GWP set; blank for CO"),
-    "remaining_or_converted": ("string", "", "remaining | converted"),
-    "previous_land_use": ("string", "", "land use before conversion"),
-    "fire_type": ("string", "", "wildfire | prescribed (fire pathways)"),
-    "land_category_code": ("string", "", "land category of the stratum (differs from category_code for IE rows)"),
-    "area_basis_ha": ("number", "ha", "area the factor multiplies: area x (1 - Frac_ditch) for ch4_soil, area x Frac_ditch for ch4_ditch"),
-    "parameter_id": ("string", "", "second parameter: Frac_ditch (CH4) or fuel consumption (fires)"),
-    "parameter_value": ("number", "", "value of the second parameter, in parameter_unit"),
-    "parameter_unit": ("string", "", "unit of parameter_value"),
-    "emission_basis": ("string", "", "mass basis the factor is printed on (t CO2-C, t CH4-C, t N2O-N, ...)"),
-    "emission_basis_t": ("number", "t", "emission on that basis, before conversion to the gas"),
-    "conversion": ("number", "", "multiplier to t of gas: emission_t = area_basis_ha x factor_value x conversion "
-                   "(fire rows: area_ha x parameter_value x factor_value x conversion)"),
-    "default_factor_id": ("string", "", "the Tier 1 default that an override replaced (blank if none)"),
-    "notation_key": ("string", "", "NA, NE or IE where the pathway has no estimate; blank otherwise"),
-    "notation_reason": ("string", "", "explanation of the notation key"),
-    "equation": ("string", "", "equation applied"),
-    "activity_source": ("string", "", "reported | interpolated | extrapolated | overlap | surrogate (gap filling)"),
-    "fill_basis": ("string", "", "how a gap-filled area was made: the years interpolated between, the years of the "
-                   "trend, or the series, ratio and years of Eq. 5.1 / Eq. 5.2"),
-    "input_file": ("string", "", "input file of the stratum or fire row"),
-    "input_row": ("integer", "", "row number in that file (header = 1); 0 for a gap-filled stratum-year"),
-}
-
+from ..schema import FACTOR_COLUMNS, FACTOR_NUMBERS, GAP_FILL_COLUMNS, table_schema
 
 CSV_ROWS_PER_PIECE = 100_000  # rows formatted at a time (bounds memory; the bytes do not depend on it)
 
@@ -119,21 +77,8 @@ def datapackage(name: str, columns: list[str], version: str) -> dict:
     return package
 
 
-def _fields(columns: list[str]) -> list[dict]:
-    fields = []
-    for col in columns:
-        ftype, unit, description = FIELDS[col]
-        field = {"name": col, "type": ftype, "description": description + (f" [{unit}]" if unit else "")}
-        if unit:
-            field["unit"] = unit  # an extra property, ignored by validators
-        fields.append(field)
-    return fields
-
-
 def _datapackage(name: str, columns: list[str], version: str) -> dict:
-    from ..pipeline import GAP_FILL_COLUMNS
-
-    fields = _fields(columns)
+    fields = table_schema(columns)
     return {
         "name": "organic-soils-inventory",
         "title": f"{name}: emissions and removals of organic soils",
@@ -146,7 +91,7 @@ def _datapackage(name: str, columns: list[str], version: str) -> dict:
             "format": "csv",
             "mediatype": "text/csv",
             "encoding": "utf-8",
-            "schema": {"fields": _fields(GAP_FILL_COLUMNS), "missingValues": [""]},
+            "schema": {"fields": table_schema(GAP_FILL_COLUMNS), "missingValues": [""]},
         }, {
             "name": "factors",
             "path": "factors.csv",
@@ -154,7 +99,7 @@ def _datapackage(name: str, columns: list[str], version: str) -> dict:
             "format": "csv",
             "mediatype": "text/csv",
             "encoding": "utf-8",
-            "schema": {"fields": [{"name": c, "type": "number" if c in ("value", "ci_low", "ci_high") else "string"}
+            "schema": {"fields": [{"name": c, "type": "number" if c in FACTOR_NUMBERS else "string"}
                                   for c in FACTOR_COLUMNS], "missingValues": [""]},
         }, {
             "name": "emissions",
@@ -170,13 +115,6 @@ def _datapackage(name: str, columns: list[str], version: str) -> dict:
 
 def write_datapackage(package: dict, path: Path) -> None:
     path.write_text(json.dumps(package, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
-
-
-FACTOR_COLUMNS = ["factor_id", "factor_set", "quantity", "climate_zone", "land_use", "soil_status", "nutrient_status",
-                  "drainage_depth", "subtype", "fire_type", "value", "unit", "ci_low", "ci_high", "tier",
-                  "verification", "verification_note", "source_id", "citation", "table", "row_label", "page",
-                  "region", "first_year", "last_year", "review_result", "reviewed_by", "reviewed_on",
-                  "reviewed_against"]
 
 
 def write_factors_csv(factors: pd.DataFrame, path: Path) -> None:

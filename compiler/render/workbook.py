@@ -144,7 +144,7 @@ def write_workbook(result, path: Path) -> None:
 
     # strata detail, split across sheets beyond the sheet row limit
     em = result.emissions
-    from ..pipeline import EXPORT_COLUMNS
+    from ..schema import EXPORT_COLUMNS
     chunk = SHEET_ROW_LIMIT - 1
     fmt = {"area_ha": FORMATS["ha"], "area_basis_ha": FORMATS["ha"], "emission_t": FORMATS["t"],
            "co2eq_t": FORMATS["t"], "emission_basis_t": FORMATS["t"], "factor_value": FORMATS["factor"],

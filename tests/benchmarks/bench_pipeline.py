@@ -154,7 +154,6 @@ def run_size(n_rows: int, workdir: Path, repeat: int, iterations: int, report: b
     A stage that runs out of memory is recorded as failed (with the peak reached) and the stages
     that need its result are skipped.
     """
-    import pandas as pd
 
     from compiler.activity import load_activity, load_fires, load_overrides
     from compiler.categories import allocate, category_table
@@ -162,7 +161,8 @@ def run_size(n_rows: int, workdir: Path, repeat: int, iterations: int, report: b
     from compiler.errors import FindingLog
     from compiler.factors import load_library
     from compiler.metrics import co2_equivalent, gwp_table
-    from compiler.pipeline import EXPORT_COLUMNS, compile_inventory
+    from compiler.pipeline import compile_inventory
+    from compiler.schema import EXPORT_COLUMNS
     from compiler.render.tidy import write_csv
     from compiler.render.workbook import SHEET_ROW_LIMIT, write_workbook
     from compiler.settings import load_settings
