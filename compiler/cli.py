@@ -159,13 +159,12 @@ def _compile(settings: Path, out: Path, quiet: bool, report: bool, archive: bool
 
 def _print_summary(result, folder: Path) -> None:
     s = result.settings
-    cats = result.categories
-    est = cats[cats["notation_key"] == ""]
-    totals = est.groupby("year")["co2eq_t"].sum() / 1000
+    agg = result.aggregates
     counts = result.findings["severity"].value_counts()
-    print(f"{s.name}: {s.first_year}-{s.last_year}, factor set {s.factor_set}, GWP100 {s.gwp}")
-    print(f"  net emissions {s.first_year}: {totals.get(s.first_year, 0.0):,.1f} kt CO2-eq; "
-          f"{s.last_year}: {totals.get(s.last_year, 0.0):,.1f} kt CO2-eq")
+    span = f"{s.first_year}-{s.last_year}" if s.last_year != s.first_year else f"{s.first_year}"
+    print(f"{s.name}: {span}, factor set {s.factor_set}, GWP100 {s.gwp}")
+    shown = dict.fromkeys([agg.base_year, agg.latest_year])  # a one-year inventory: its year once
+    print("  net emissions " + "; ".join(f"{y}: {agg.total_co2eq_t[y] / 1000:,.1f} kt CO2-eq" for y in shown))
     print(f"  {len(result.activity)} activity rows, {len(result.emissions)} result rows, "
           f"{len(result.factors_used)} factors used")
     print(f"  findings: {counts.get('warning', 0)} warnings, {counts.get('info', 0)} notes "

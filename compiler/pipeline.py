@@ -17,6 +17,7 @@ import pandas as pd
 
 from . import __version__
 from .activity import load_activity, load_fires, load_overrides, load_review, load_review_log, load_surrogates
+from .aggregate import Aggregates, aggregate
 from .categories import allocate, category_table
 from .engine import compute
 from .errors import Finding, FindingLog, InputError, QaqcError
@@ -47,6 +48,7 @@ class InventoryResult:
     uncertainty: object = None  # compiler.uncertainty.UncertaintyResult
     key_categories: object = None  # compiler.key_categories.KeyCategoryResult
     review_log: pd.DataFrame = field(default_factory=pd.DataFrame)
+    aggregates: Aggregates | None = None  # every total and cross-table an output shows (compiler.aggregate)
 
     @property
     def totals(self) -> pd.DataFrame:
@@ -160,7 +162,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     result = InventoryResult(settings=settings, activity=activity, emissions=emissions,
                              categories=categories, factors_used=factors_used, findings=findings, library=library,
                              input_hashes=hashes, gwp=gwp, compile_date=compile_date,
-                             finding_list=list(log.findings), recalculation=recalculation, review_log=review_log)
+                             finding_list=list(log.findings), recalculation=recalculation, review_log=review_log,
+                             aggregates=aggregate(categories, emissions, activity, settings.years))
     if analyses:
         _analyse(result, progress)
     return result

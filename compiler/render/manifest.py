@@ -12,7 +12,7 @@ from ..factors import file_sha256
 def manifest(result, folder: Path, files: list[str]) -> dict:
     s = result.settings
     activity = result.activity
-    areas = activity.groupby("year")["area_ha"].sum()
+    areas = result.aggregates.area_total_ha
     return {
         "tool": "histosol",
         "version": __version__,

@@ -92,48 +92,43 @@ def _records(frame: pd.DataFrame, columns):
 def write_workbook(result, path: Path) -> None:
     s = result.settings
     wb = Workbook(write_only=True)
-    base, latest = s.first_year, s.last_year
+    agg = result.aggregates
+    base, latest = agg.base_year, agg.latest_year
     cats = result.categories
+    cells = agg.category_cells
+
+    def kt(value):  # a figure in t (or a notation key) as shown in kt
+        return value if isinstance(value, str) else value / 1000
 
     # summary
+    # A one-year inventory shows its year once, without a change column.
+    shown = [base, latest] if latest != base else [base]
+    at = [cells.columns.get_loc(y) for y in shown]
     summary_rows = []
-    for (code, name, gas), g in cats.groupby(["category_code", "category_name", "gas"], sort=False):
-        by_year = g.set_index("year")
-        b, l = by_year.loc[base], by_year.loc[latest]
-        def show(r):
-            return r["notation_key"] if r["notation_key"] else (r["co2eq_t"] / 1000 if pd.notna(r["co2eq_t"]) else r["emission_t"] / 1000)
-        bv, lv = show(b), show(l)
-        change = (lv - bv) / abs(bv) if isinstance(bv, float) and isinstance(lv, float) and bv != 0 else None
-        unit = "kt CO2-eq" if gas != "CO" else "kt CO"
-        summary_rows.append((code, name, gas, unit, bv, lv, change))
-    totals = cats[cats["notation_key"] == ""].groupby("year")["co2eq_t"].sum()
-    tb, tl = totals.get(base, 0.0) / 1000, totals.get(latest, 0.0) / 1000
-    summary_rows.append(("Total", "all categories, gases with a GWP", "CO2-eq", "kt CO2-eq", tb, tl,
-                         (tl - tb) / abs(tb) if tb else None))
+    for row in cells.itertuples(index=False, name=None):  # categories x gases: a few dozen
+        code, name, gas, unit = row[:4]
+        values = [kt(row[i]) for i in at]
+        if len(shown) == 2:
+            bv, lv = values
+            values.append(agg.change(bv, lv) if isinstance(bv, float) and isinstance(lv, float) else None)
+        summary_rows.append((code, name, gas, "k" + unit, *values))
+    totals = [float(agg.total_co2eq_t[y]) / 1000 for y in shown]
+    summary_rows.append(("Total", "all categories, gases with a GWP", "CO2-eq", "kt CO2-eq", *totals,
+                         *([agg.change(*totals)] if len(shown) == 2 else [])))
     notes = [f"{s.name} - submission {s.submission_year}, years {base}-{latest}",
              f"Factor set {s.factor_set}; GWP100 set {s.gwp}; molar masses: {s.mass_ratios}; compiled {result.compile_date} "
              f"with histosol {result.version}",
              "Tier 1 defaults are coarse; key categories deserve higher tiers; estimates must pass the national QA/QC plan.",
              "Notation keys: " + "; ".join(f"{k} = {v}" for k, v in NOTATION_KEYS.items())]
-    _sheet(wb, "summary", ["category_code", "category_name", "gas", "unit", f"{base}", f"{latest}", "change"],
-           summary_rows, {f"{base}": FORMATS["kt"], f"{latest}": FORMATS["kt"], "change": FORMATS["pct"]},
+    _sheet(wb, "summary", ["category_code", "category_name", "gas", "unit", *map(str, shown),
+                           *(["change"] if len(shown) == 2 else [])],
+           summary_rows, {**{str(y): FORMATS["kt"] for y in shown}, "change": FORMATS["pct"]},
            {"category_name": 40, "category_code": 14}, notes)
 
     # categories x gas x year (kt CO2-eq, notation keys in place)
-    years = list(s.years)
-    wide = []
-    for (code, name, gas), g in cats.groupby(["category_code", "category_name", "gas"], sort=False):
-        by_year = g.set_index("year")
-        values = []
-        for y in years:
-            r = by_year.loc[y]
-            if r["notation_key"]:
-                values.append(r["notation_key"])
-            elif gas == "CO":
-                values.append(r["emission_t"] / 1000)
-            else:
-                values.append(r["co2eq_t"] / 1000)
-        wide.append((code, name, gas, "kt CO" if gas == "CO" else "kt CO2-eq", *values))
+    years = list(agg.years)
+    wide = [(code, name, gas, "k" + unit, *map(kt, values))
+            for code, name, gas, unit, *values in cells.itertuples(index=False, name=None)]
     _sheet(wb, "categories", ["category_code", "category_name", "gas", "unit", *map(str, years)], wide,
            {str(y): FORMATS["kt"] for y in years}, {"category_name": 36}, freeze="E2")
 

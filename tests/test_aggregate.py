@@ -1,0 +1,47 @@
+"""The aggregate stage: each reported total is computed once, and every output shows that figure."""
+
+from __future__ import annotations
+
+import openpyxl
+import pytest
+
+from compiler import compile_inventory
+from conftest import stratum, write_inventory
+
+
+def test_totals_add_up_from_the_reporting_cells(demo_result):
+    agg = demo_result.aggregates
+    cats = demo_result.categories
+    est = cats[(cats["notation_key"] == "") & cats["co2eq_t"].notna()]
+    for year in (agg.base_year, agg.latest_year):
+        assert agg.total_co2eq_t[year] == pytest.approx(est.loc[est["year"] == year, "co2eq_t"].sum(), rel=1e-12)
+        assert agg.gas_co2eq_t.loc[year].sum() == pytest.approx(agg.total_co2eq_t[year], rel=1e-12)
+        assert agg.category_co2eq_t[year].sum() == pytest.approx(agg.total_co2eq_t[year], rel=1e-12)
+        assert agg.region_co2eq_t[year].sum() == pytest.approx(agg.total_co2eq_t[year], rel=1e-9)
+
+
+def test_the_workbook_summary_shows_the_aggregate(demo_output, demo_result):
+    agg = demo_result.aggregates
+    ws = openpyxl.load_workbook(demo_output / "inventory.xlsx")["summary"]
+    rows = [r for r in ws.iter_rows(values_only=True)]
+    total = next(r for r in rows if r and r[0] == "Total")
+    assert total[4] == agg.total_base_t / 1000 and total[5] == agg.total_latest_t / 1000
+
+
+@pytest.mark.parametrize("years, areas", [((2020, 2020), (10.0, 5.0)), ((2020, 2021), (0.0, 0.0)),
+                                          ((2019, 2021), (3.0, 4.0))])
+def test_every_inventory_length_and_all_zero_areas(tmp_path, years, areas):
+    first, last = years
+    rows = [stratum(year=y, area_ha=a) for y in range(first, last + 1) for a in areas[:1]]
+    rows += [stratum(year=y, land_use="grassland", nutrient_status="poor", area_ha=areas[1])
+             for y in range(first, last + 1)]
+    settings = write_inventory(tmp_path / "inv", rows, first=first, last=last)
+    result = compile_inventory(settings, iterations=300)
+    agg = result.aggregates
+    assert agg.years == tuple(range(first, last + 1))
+    assert list(agg.total_co2eq_t.index) == list(agg.years)
+    result.write(tmp_path / "out", report=False)
+    summary = openpyxl.load_workbook(tmp_path / "out" / "inventory.xlsx")["summary"]
+    header = next(r for r in summary.iter_rows(values_only=True) if r and r[0] == "category_code")
+    assert header.count(str(first)) == 1  # a one-year inventory shows its year once
+    assert ("change" in header) == (first != last)
