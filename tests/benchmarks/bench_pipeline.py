@@ -9,6 +9,8 @@ gaps       timeseries.fill_gaps (no gaps here: the cost of looking)
 compute    engine.compute (resolve factors on distinct strata, overrides, equations)
 aggregate  categories.allocate + categories.category_table
 compile    pipeline.compile_inventory(analyses=False), the whole compile without analyses
+full       pipeline.compile_inventory(), the compile as a user runs it: QA/QC, Approach 1, Monte Carlo
+           (the settings' iterations) and key categories, nothing skipped
 approach1  uncertainty.approach1
 mc         uncertainty.monte_carlo with a fixed iteration count (default 2000)
 workbook   render.workbook.write_workbook (with the uncertainty sheets)
@@ -49,8 +51,8 @@ import numpy as np
 
 from tests.benchmarks import synthetic
 
-STAGES = ("load", "gaps", "compute", "kernel", "aggregate", "compile", "approach1", "mc", "qaqc", "workbook", "csv",
-          "report")
+STAGES = ("load", "gaps", "compute", "kernel", "aggregate", "compile", "full", "approach1", "mc", "qaqc", "workbook",
+          "csv", "report")
 REPEATS = {1_000: 5, 10_000: 5, 100_000: 3, 1_000_000: 1}
 REPORT_SIZES = (1_000, 10_000)
 GIB = 1024 ** 3
@@ -231,6 +233,10 @@ def run_size(n_rows: int, workdir: Path, repeat: int, iterations: int, report: b
         result = stage("compile", lambda: compile_inventory(settings, analyses=False))
     except Skipped:
         return out
+    try:
+        stage("full", lambda: compile_inventory(settings), times=max(1, repeat // 2))
+    except Skipped:
+        pass
     tmp = Path(tempfile.mkdtemp(prefix="bench-out-", dir=workdir))
     try:
         try:
@@ -457,3 +463,45 @@ def main(argv=None) -> int:
 
 if __name__ == "__main__":
     sys.exit(main())
+
+
+# --- the compile as a user runs it, against a plain pandas script -------------------------------------
+
+def _cpu_of(command: list[str], cwd: Path) -> float:
+    """CPU seconds (user + system) of one child process running ``command``."""
+    import resource
+
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    proc = subprocess.run(command, cwd=cwd, capture_output=True, text=True)
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    if proc.returncode != 0:
+        raise RuntimeError(f"{' '.join(command[:4])} failed: {proc.stderr.strip()[-300:]}")
+    return (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+
+
+def cli_against_peer(n_rows: int, workdir: Path, repeat: int = 3) -> dict:
+    """``histosol compile --no-report`` with Approach 1 against the peer baseline, CPU seconds, medians."""
+    from tests.benchmarks import peer_baseline
+
+    folder = workdir / f"rows-{n_rows}"
+    settings = synthetic.write_inventory(folder, n_rows)
+    approach1 = folder / "inventory-approach1.toml"
+    approach1.write_text(settings.read_text(encoding="utf-8").replace('approach = "both"', 'approach = "1"'),
+                         encoding="utf-8")
+    sample = synthetic.write_inventory(workdir / "rows-1000", 1_000)
+    factors = folder / "peer-factors.csv"
+    peer_baseline.factor_rows(sample).to_csv(factors, index=False)
+    root = Path(__file__).resolve().parents[2]
+    ours, peer = [], []
+    for _ in range(repeat):  # interleaved, so both see the same machine state
+        with tempfile.TemporaryDirectory(dir=workdir) as tmp:
+            ours.append(_cpu_of([sys.executable, "-m", "compiler", "compile", str(approach1), "--no-report",
+                                 "--quiet", "--out", str(Path(tmp) / "out")], root))
+            peer.append(_cpu_of([sys.executable, "-m", "tests.benchmarks.peer_baseline", str(folder / "activity.csv"),
+                                 str(factors), str(Path(tmp) / "peer.csv")], root))
+    out = {"rows": n_rows, "ours_cpu_s": statistics.median(ours), "peer_cpu_s": statistics.median(peer)}
+    out["ratio"] = out["ours_cpu_s"] / out["peer_cpu_s"]
+    print(f"histosol compile --no-report (Approach 1) at {n_rows:,} stratum-years: {out['ours_cpu_s']:.2f} s CPU; "
+          f"plain pandas script: {out['peer_cpu_s']:.2f} s CPU; ratio {out['ratio']:.1f} (target <= 3; median of "
+          f"{repeat}, interleaved)")
+    return out
