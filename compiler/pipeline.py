@@ -105,6 +105,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     review = load_review(settings, log, set(library.register["factor_id"]))
     review_log = load_review_log(settings, log, set(library.categories["category_code"]))
     surrogates = load_surrogates(settings, log)
+    previous, national = _load_other_inputs(settings, log)
     log.raise_if_errors()
     activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region,
                          surrogates, settings.fill_by_land_use)
@@ -140,10 +141,9 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
 
     _check_area_balance(activity, emissions, log)
     recalculation = None
-    if settings.previous_submission is not None:
-        from .recalculations import compare, load_export, trend_effect
+    if previous is not None:
+        from .recalculations import compare, trend_effect
 
-        previous = load_export(settings.previous_submission, settings.max_input_mb)
         current = emissions[emissions["notation_key"] == ""]
         by_cell, by_row = compare(previous, current)
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
@@ -165,8 +165,31 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
                              finding_list=list(log.findings), recalculation=recalculation, review_log=review_log,
                              aggregates=aggregate(categories, emissions, activity, settings.years))
     if analyses:
-        _analyse(result, progress)
+        _analyse(result, progress, national)
     return result
+
+
+def _load_other_inputs(settings: Settings, log: FindingLog) -> tuple[pd.DataFrame | None, pd.DataFrame | None]:
+    """The previous submission and the national totals, read with the other inputs, before anything is computed.
+
+    Their problems join the log, so that every input problem is reported at once and nothing is computed
+    from inputs that cannot be read.
+    """
+    from .key_categories import load_national_totals
+    from .recalculations import load_export
+
+    previous = national = None
+    if settings.previous_submission is not None:
+        try:
+            previous = load_export(settings.previous_submission, settings.max_input_mb)
+        except InputError as exc:
+            log.extend(exc.findings)
+    if settings.national_totals:
+        try:
+            national = load_national_totals(settings.national_totals, settings.max_input_mb)
+        except InputError as exc:
+            log.extend(exc.findings)
+    return previous, national
 
 
 def _sort_codes(column: pd.Series) -> np.ndarray:
@@ -203,15 +226,12 @@ def _sorted(held: list[pd.DataFrame], keys: list[str]) -> pd.DataFrame:
     return out[columns]
 
 
-def _analyse(result: InventoryResult, progress) -> None:
-    """Uncertainty (Approach 1 and/or 2) and key categories; their findings join the result's."""
-    from .key_categories import key_categories, load_national_totals
+def _analyse(result: InventoryResult, progress, national: pd.DataFrame | None = None) -> None:
+    """QA/QC, uncertainty (Approach 1 and/or 2) and key categories; their findings join the result's."""
+    from .key_categories import key_categories
+    from .qaqc import QaqcThresholds, run_checks
     from .uncertainty import run_uncertainty
 
-    from .qaqc import QaqcThresholds, run_checks
-
-    national = (load_national_totals(result.settings.national_totals, result.settings.max_input_mb)
-                if result.settings.national_totals else None)
     evidence = result.activity["evidence"] if "evidence" in result.activity else None
     if evidence is not None and not (evidence != "").any():
         evidence = None
