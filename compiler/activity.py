@@ -359,7 +359,7 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
 def _load(path: Path, sheet: str, spec: list[Column], log: FindingLog, settings: Settings) -> tuple[pd.DataFrame, str]:
     raw, sheet_name, notes = read_table(path, sheet, settings.max_input_mb)
     log.extend(notes)
-    decimal_comma = any("semicolon" in n.message for n in notes)
+    decimal_comma = any(n.check == "read" and n.found == ";" for n in notes)  # the reader's delimiter note
     check = _Checker(log, str(path), sheet_name)
     frame = validate_columns(raw, spec, check, settings, decimal_comma)
     frame.attrs["file"], frame.attrs["sheet"] = str(path), sheet_name

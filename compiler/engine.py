@@ -14,7 +14,7 @@ import pandas as pd
 from .errors import FindingLog
 from .factors import KEYS, QUANTITIES, FactorLibrary, apply_overrides, override_rows_to_register, resolve_defaults
 from .matching import distinct_codes, missing_distinctions
-from .readers import MAX_LISTED, ROW
+from .readers import ROW
 from .row_model import ROW_MODELS
 from .schema import RESULT_COLUMNS, STRATUM_KEYS
 from .settings import Settings
@@ -89,19 +89,18 @@ def _report_missing(rows: pd.DataFrame, missing: np.ndarray, quantity: str, libr
         described = ", ".join(f"{k}={stratum[k]}" for k in KEYS if stratum[k] != "" and k != "fire_type") or "(all blank)"
         needed = missing_distinctions(stratum, rules, KEYS)
         row_numbers = sample[ROW].astype(int).tolist()
-        listed = ", ".join(map(str, row_numbers[:MAX_LISTED])) + (f" and {len(row_numbers) - MAX_LISTED} more"
-                                                                  if len(row_numbers) > MAX_LISTED else "")
         if needed:
             key = next(iter(needed))
             message = (f"no {quantity} factor for {described}: the {settings.factor_set} table distinguishes "
-                       f"{', '.join(needed)} here (rows {listed})")
+                       f"{', '.join(needed)} here")
             expected = "; ".join(f"{k}: {' | '.join(v)}" for k, v in needed.items())
         else:
             key = "land_use"
             message = (f"no {quantity} factor for {described}: the {settings.factor_set} set has no Tier 1 default "
-                       f"for this stratum (rows {listed})")
+                       f"for this stratum")
             expected = "an override with its source in [inputs] overrides, or another stratum description"
-        log.add("error", "factor_missing", message, file=file, row=row_numbers[0], column=key, expected=expected)
+        log.add("error", "factor_missing", message, file=file, row=row_numbers[0], column=key, expected=expected,
+                rows=tuple(row_numbers))
 
 
 def _note_undistinguished(rows: pd.DataFrame, ids: pd.Series, register: pd.DataFrame, quantity: str,

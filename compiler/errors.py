@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from typing import Iterable
 
 SEVERITIES = ("error", "warning", "info")
+MAX_LISTED = 10  # rows listed per problem before "and N more"
 
 
 @dataclass(frozen=True)
@@ -32,6 +33,22 @@ class Finding:
     column: str = ""
     found: str = ""
     expected: str = ""
+    # What the finding is about, as data (a renderer or a later stage reads these, never the message text):
+    # the reporting category, the gas and the inventory years it concerns, where it concerns any.
+    category_code: str = ""
+    gas: str = ""
+    years: tuple[int, ...] = ()
+    # Every input row the finding concerns (``row`` is the first); the text lists the first MAX_LISTED.
+    rows: tuple[int, ...] = ()
+
+    @property
+    def text(self) -> str:
+        """The message, with the rows it concerns listed (what the outputs show)."""
+        if not self.rows:
+            return self.message
+        listed = ", ".join(map(str, self.rows[:MAX_LISTED]))
+        more = f" and {len(self.rows) - MAX_LISTED} more" if len(self.rows) > MAX_LISTED else ""
+        return f"{self.message} (rows {listed}{more})"
 
     def location(self, short: bool = False) -> str:
         parts = []
@@ -47,7 +64,7 @@ class Finding:
 
     def render(self, short: bool = False) -> str:
         """One line: severity, check, location (file name only when ``short``), message, found, expected."""
-        text = self.message
+        text = self.text
         if self.found != "":
             text += f"; found {self.found!r}"
         if self.expected:
@@ -63,9 +80,12 @@ class Finding:
             "sheet": self.sheet,
             "row": self.row,
             "column": self.column,
-            "message": self.message,
+            "message": self.text,
             "found": self.found,
             "expected": self.expected,
+            "category_code": self.category_code,
+            "gas": self.gas,
+            "years": " ".join(map(str, self.years)),
         }
 
 

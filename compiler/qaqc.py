@@ -303,6 +303,11 @@ def _first_input_row(rows: pd.Series) -> float:
     return rows.min() if len(rows) else np.nan
 
 
+def _cell(r) -> dict:
+    """The structured fields of a finding about one reporting cell (a row with category_code, gas, year)."""
+    return {"category_code": str(r.category_code), "gas": str(r.gas), "years": (int(r.year),)}
+
+
 def _record(frame: pd.DataFrame) -> str:
     """The column that identifies an input record in the emissions: ``record_id`` where the engine gives it
     (the index of the activity or fire table), else the spreadsheet row."""
@@ -522,7 +527,8 @@ def check_year_on_year_emissions(result, thresholds: QaqcThresholds) -> list[Fin
             f"{r.category_code} {r.gas} {_change_text('rises', 'falls', r)} "
             f"({shown(r.before, r.year - 1)} -> {shown(r.after, r.year)} t CO2-eq): explain the change in the "
             "inventory report", column="co2eq_t", found=f"{r.change:+,.1f} t CO2-eq",
-            expected=f"within +/-{thresholds.year_on_year_emission_pct:g} % of {r.before:,.1f} t CO2-eq"))
+            expected=f"within +/-{thresholds.year_on_year_emission_pct:g} % of {r.before:,.1f} t CO2-eq",
+            category_code=r.category_code, gas=r.gas, years=(int(r.year) - 1, int(r.year))))
     return out
 
 
@@ -582,16 +588,17 @@ def check_implied_emission_factor(result, thresholds: QaqcThresholds) -> list[Fi
             text = (f"{r.category_code} {r.gas} {r.year}: {r.emission_t:,.3f} t with no area behind it "
                     f"(area_ha {r.area_ha}): the category area is wrong")
             return Finding("error", "implied_emission_factor", text, column="area_ha", found=str(r.area_ha),
-                           expected="the area of the strata behind the cell")
+                           expected="the area of the strata behind the cell", **_cell(r))
         if pd.isna(r.low):
             return Finding("error", "implied_emission_factor",
                            f"{r.category_code} {r.gas} {r.year}: {r.emission_t:,.3f} t shown but no stratum with "
                            "area estimated in it", column="emission_t", found=f"{r.emission_t:,.3f} t",
-                           expected="the sum of the strata rows behind the cell")
+                           expected="the sum of the strata rows behind the cell", **_cell(r))
         return Finding("error", "implied_emission_factor",
                        f"{r.category_code} {r.gas} {r.year}: {message} ({r.ief:.6g} against {r.low:.6g} to "
                        f"{r.high:.6g} {unit}): the category's area or emissions do not match its strata",
-                       column="emission_t", found=f"{r.ief:.6g} {unit}", expected=f"{r.low:.6g} to {r.high:.6g} {unit}")
+                       column="emission_t", found=f"{r.ief:.6g} {unit}", expected=f"{r.low:.6g} to {r.high:.6g} {unit}",
+                       **_cell(r))
 
     return _capped("implied_emission_factor", "error", message, flagged, make)
 
@@ -774,7 +781,8 @@ def check_estimated_ne_with_area(result, thresholds: QaqcThresholds) -> list[Fin
             f"{r.pathway} ({r.gas}) of {r.land_use} {r.soil_status} ({r.category_code}) is NE on up to "
             f"{r.peak:,.1f} ha a year in {r.years} ({r.rows} strata rows); {why}",
             **_where(result, r.input_file), row=_row_number(r.first_row), column="notation_key", found="NE",
-            expected="an estimate, or NE shown insignificant (see ne_insignificance)"))
+            expected="an estimate, or NE shown insignificant (see ne_insignificance)",
+            category_code=r.category_code, gas=r.gas))
     return out
 
 
@@ -857,14 +865,15 @@ def check_sums(result, thresholds: QaqcThresholds) -> list[Finding]:
             "error", "sums",
             f"{r.category_code} {r.gas} {r.year}: {message}"
             + (" (the cell is missing from the categories table)" if r.presence == "right_only" else ""),
-            column=c, found=f"{getattr(r, c)}", expected=f"{getattr(r, c + '_strata')}"))
+            column=c, found=f"{getattr(r, c)}", expected=f"{getattr(r, c + '_strata')}", **_cell(r)))
     number = cats["emission_t"].notna()
     key = cats["notation_key"] != ""
     mixed = cats[number == key]
     message = "a category cell holds both or neither of a number and a notation key"
     out += _capped("sums", "error", message, mixed, lambda r: Finding(
         "error", "sums", f"{r.category_code} {r.gas} {r.year}: {message}", column="notation_key",
-        found=f"{r.emission_t} / {r.notation_key!r}", expected="a number, or a notation key with its reason"))
+        found=f"{r.emission_t} / {r.notation_key!r}", expected="a number, or a notation key with its reason",
+        **_cell(r)))
     # Categories -> total, per gas and in CO2-eq.
     by_gas = cats.groupby(["year", "gas"])["emission_t"].sum()
     totals = result.totals.rename_axis(columns="gas").reset_index().melt(id_vars="year", var_name="gas",

@@ -30,10 +30,9 @@ from pathlib import Path
 
 import pandas as pd
 
-from .errors import Finding, InputError
+from .errors import MAX_LISTED, Finding, InputError  # noqa: F401 (MAX_LISTED: the checks import it from here)
 
 ROW = "_row"
-MAX_LISTED = 10  # rows listed per problem before "and N more"
 MIB = 1024 * 1024
 SNIFF_BYTES = 4096
 ZIP_MAGIC = b"PK\x03\x04"
@@ -122,7 +121,8 @@ def _read_csv(path: Path) -> tuple[pd.DataFrame, list[Finding]]:
     elif ";" in first and "," not in first:
         delimiter = ";"
         notes.append(Finding("info", "read", "semicolon-separated file: read with ';' between columns and ',' "
-                             "accepted as decimal mark in number columns", file=fname))
+                             "accepted as decimal mark in number columns", file=fname, column="(column separator)",
+                             found=";"))
     try:
         reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
         rows = list(reader)

@@ -63,7 +63,6 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -924,7 +923,7 @@ def _remap_findings(errors: list[Finding], frame: pd.DataFrame, scenarios, resul
     by_name = {s.name: s for s in scenarios}
     out = []
     for f in errors:
-        message = re.sub(r" \(rows [^)]*\)", "", f.message)
+        message = f.message  # without the list of rows, which are the scenario's own synthetic rows
         key, origin = "", ""
         if f.row is not None and 1 <= f.row <= len(frame):
             row = frame.iloc[f.row - 1]

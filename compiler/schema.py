@@ -94,7 +94,8 @@ FACTOR_COLUMNS = ["factor_id", "factor_set", "quantity", *FACTOR_KEYS, "value", 
                   "reviewed_against"]
 FACTOR_NUMBERS = ("value", "ci_low", "ci_high")
 # The findings table (workbook, check).
-FINDING_COLUMNS = ["severity", "check", "file", "sheet", "row", "column", "message", "found", "expected"]
+FINDING_COLUMNS = ["severity", "check", "file", "sheet", "row", "column", "message", "found", "expected",
+                   "category_code", "gas", "years"]
 
 
 def table_schema(columns: list[str]) -> list[dict]:

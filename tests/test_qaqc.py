@@ -76,7 +76,8 @@ def test_thresholds_defaults_documented_and_validated():
 
 
 def test_findings_table_columns_and_empty():
-    columns = ["severity", "check", "file", "sheet", "row", "column", "message", "found", "expected"]
+    columns = ["severity", "check", "file", "sheet", "row", "column", "message", "found", "expected",
+               "category_code", "gas", "years"]  # what a finding is about, as data (not in its text)
     empty = Q.findings_table([])
     assert list(empty.columns) == columns and empty.empty
     table = Q.findings_table([Q.Finding("warning", "sums", "x", file="a.csv", row=3)])

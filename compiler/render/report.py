@@ -224,9 +224,9 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
     review = []
     if result.review_log is not None and not result.review_log.empty:
         for r in result.review_log.to_dict("records"):
-            related = [f for f in result.finding_list if r["category_code"] and r["category_code"] in f.message
+            related = [f for f in result.finding_list if r["category_code"] and f.category_code == r["category_code"]
                        and f.severity in ("error", "warning") and f.check != "review_open"]
-            shown = [f"{f.check}: {f.message}" for f in related[:3]]
+            shown = [f"{f.check}: {f.text}" for f in related[:3]]
             if len(related) > 3:
                 shown.append(f"and {len(related) - 3} more findings on {r['category_code']} (see Input findings)")
             review.append({**r, "related": shown})
