@@ -8,7 +8,7 @@ import pytest
 
 from compiler.factors import KEYS, QUANTITIES, VERIFICATION, load_library, resolve_defaults
 from compiler.resources import resource_dir
-from compiler.units import CANONICAL_UNITS
+from compiler.units import CANONICAL_UNITS, conversion_factor
 from compiler.vocabulary import TERMS
 
 TABLES = resource_dir("factor_tables")
@@ -18,7 +18,7 @@ TABLES = resource_dir("factor_tables")
 FINGERPRINTS = [
     ("climate_zones_ipcc2006.csv", 20, 6, None, "ee1baceed4c01e93ee7d6f8f8f6f902755511804cd51d971e78975691ab329cb"),
     ("drained_ipcc2006.csv", 29, 19, 124.63, "71e62254df6cc393c7c3cdb813c43dbbfe92c0edf0255dee6a39ccc32ffe5320"),
-    ("drained_ipcc2013ws.csv", 87, 19, 9443.21, "ca2651eff3d0c960377486e735a5ce9d974e3101fd7d8967bf29a67d4e097b32"),
+    ("drained_ipcc2013ws.csv", 87, 19, 9443.21, "2a71eb0fe856e9ca36a934d3031f0444dfa715a34ae4f7027833d3f00b695cd5"),
     ("fire_ipcc2013ws.csv", 13, 15, 2865.2, "0524c5ea079091037eab2f7374a0ea259fe1e05d5473a47235355fcb3019da0a"),
     ("gwp.csv", 13, 11, 1280.8, "57182511af089f33525d168ae3e8f379e5b927f8173d3944d7aeecc5c87e5aa3"),
     ("pathway_coverage.csv", 28, 8, None, "972741bd042b81a2ff886ddd7be26f6336173059d918702aa26dd75d16d354e7"),
@@ -90,3 +90,20 @@ def test_shipped_values_spot_checks(library):
     assert reg.loc["ws13-t2.1-tem-crop", "value"] == 7.9
     assert reg.loc["ws13-t2.5-tem-crop", "value"] == 13
     assert reg.loc["ws13-t3.3-tem-rich", ["value", "unit"]].tolist() == [216, "kg CH4-C ha-1 yr-1"]
+
+
+# --- corrections of 2026-12 (issue 17: outside review of the shipped rows) ---------------------------------
+# Each corrected row: the source it now follows and the reason for the change. No readable copy of the
+# Wetlands Supplement tables was found, so the rows stay from_memory and their notes say what conflicts.
+
+
+def test_doc_flux_natural_is_labelled_in_doc_carbon(library):
+    # Source: 2013 Wetlands Supplement Eq. 2.5: DOC_FLUX_NATURAL is a flux of dissolved organic carbon
+    # (t DOC-C per ha and year), converted to CO2-C only by Frac_DOC-CO2. Reason: it was labelled t CO2-C.
+    reg = library.register
+    rows = reg[reg["quantity"] == "doc_flux_natural"]
+    assert len(rows) == 3 and (rows["unit"] == "t DOC-C ha-1 yr-1").all()
+    assert QUANTITIES["doc_flux_natural"][1] == "t DOC-C ha-1 yr-1"
+    with pytest.raises(ValueError):  # a DOC flux is not a CO2 flux
+        conversion_factor("t DOC-C ha-1 yr-1", "t CO2-C ha-1 yr-1")
+    assert conversion_factor("g DOC-C m-2 yr-1", "t DOC-C ha-1 yr-1") == pytest.approx(0.01)
