@@ -19,7 +19,7 @@ FINGERPRINTS = [
     ("climate_zones_ipcc2006.csv", 20, 6, None, "ee1baceed4c01e93ee7d6f8f8f6f902755511804cd51d971e78975691ab329cb"),
     ("drained_ipcc2006.csv", 29, 19, 124.63, "71e62254df6cc393c7c3cdb813c43dbbfe92c0edf0255dee6a39ccc32ffe5320"),
     ("drained_ipcc2013ws.csv", 87, 19, 9443.21, "2a71eb0fe856e9ca36a934d3031f0444dfa715a34ae4f7027833d3f00b695cd5"),
-    ("fire_ipcc2013ws.csv", 13, 15, 2865.2, "0524c5ea079091037eab2f7374a0ea259fe1e05d5473a47235355fcb3019da0a"),
+    ("fire_ipcc2013ws.csv", 13, 15, 3031.0, "707411a6ed5b36a6fd77a46072076b84a197285e50b57d803840fe83ed564a6e"),
     ("gwp.csv", 13, 11, 1280.8, "57182511af089f33525d168ae3e8f379e5b927f8173d3944d7aeecc5c87e5aa3"),
     ("pathway_coverage.csv", 28, 8, None, "972741bd042b81a2ff886ddd7be26f6336173059d918702aa26dd75d16d354e7"),
     ("reporting_allocation.csv", 28, 7, None, "bf4ecb1c13b20ff58f38c1a05ed12ca8d8059c559145192298bd1f82809fbcf4"),
@@ -107,3 +107,42 @@ def test_doc_flux_natural_is_labelled_in_doc_carbon(library):
     with pytest.raises(ValueError):  # a DOC flux is not a CO2 flux
         conversion_factor("t DOC-C ha-1 yr-1", "t CO2-C ha-1 yr-1")
     assert conversion_factor("g DOC-C m-2 yr-1", "t DOC-C ha-1 yr-1") == pytest.approx(0.01)
+
+
+def _row(library, factor_id):
+    return library.register.set_index("factor_id").loc[factor_id]
+
+
+@pytest.mark.parametrize("factor_id, value, old", [("ws13-t2.7-bt-co", 207, 127), ("ws13-t2.7-tem-co", 207, 127),
+                                                     ("ws13-t2.7-bt-ch4", 9, 6.1), ("ws13-t2.7-tem-ch4", 9, 6.1)])
+def test_table_2_7_boreal_temperate_fire_co_and_ch4(library, factor_id, value, old):
+    # Source: 2013 Wetlands Supplement Table 2.7, organic-soil fires, boreal and temperate: CO 207 and
+    # CH4 9 g/kg dry matter (from memory, recalled independently by an outside review and on this check).
+    # Reason: the former CO 127 (82-172) and CH4 6.1 (3.8-8.4) are the boreal *forest biomass* factors of a
+    # biomass-burning compilation (CO 127 +/- 45), not organic-soil factors; CH4 was 32 % low.
+    row = _row(library, factor_id)
+    assert row["value"] == value and row["verification"] == "from_memory"
+    # No interval was recalled for the organic-soil values: none is shipped rather than the forest one.
+    assert pd.isna(row["ci_low"]) and pd.isna(row["ci_high"])
+    assert row["verification_note"].startswith(f"conflict: corrected 2026-12 from {old}")
+
+
+@pytest.mark.parametrize("factor_id, interval", [("ws13-t2.6-tro-wild", (170, 536)), ("ws13-t2.6-tro-presc", (82, 228))])
+def test_table_2_6_tropical_fuel_consumption_intervals(library, factor_id, interval):
+    # Source: 2013 Wetlands Supplement Table 2.6 as reconstructed by an outside review (353, 170-536 and
+    # 155, 82-228 t dm/ha; from memory). Reason: the former 183-523 was entered as 353 +/- 170, and 170 is the
+    # reconstruction's printed lower bound: a bound read as a half-width. Means unchanged.
+    row = _row(library, factor_id)
+    assert (row["ci_low"], row["ci_high"]) == interval
+    assert row["verification_note"].startswith("conflict: interval changed 2026-12")
+
+
+def test_table_2_6_and_2_7_interval_kind_is_recorded_as_open(library):
+    # Source: 2006 GL Vol. 4 Tables 2.4 and 2.5 print mean +/- SD; whether the +/- of WS2013 Tables 2.6
+    # and 2.7 are SDs or 95 % half-widths is not established (no readable copy): kept as 95 % half-widths,
+    # and every such row says so.
+    reg = library.register
+    kept = reg[reg["table"].isin(["Table 2.6", "Table 2.7"]) & reg["ci_low"].notna()
+               & ~reg["factor_id"].isin(["ws13-t2.6-tro-wild", "ws13-t2.6-tro-presc"])]
+    assert len(kept) == 7
+    assert kept["verification_note"].str.contains("interval kind open").all()

@@ -95,3 +95,17 @@ def test_region_override_in_t_co2(demo_result):
     other = one(pick(demo_result.emissions, year=2010, region="Vennmarsh", land_use="grassland",
                      drainage_depth="deep", pathway="co2_onsite"))
     assert other["factor_id"] == "ws13-t2.1-tem-grass-rich-deep"  # region-specific: not Vennmarsh
+
+
+def test_boreal_fire_ch4_and_co_organic_soil_factors(demo_result):
+    # Skarrowdale, 2006: 35 ha of boreal wildfire on drained organic soil.
+    # Source: WS2013 Table 2.6 (336 t dm/ha) and Table 2.7 organic-soil fires, boreal and temperate: CO2-C 362,
+    # CH4 9, CO 207 g/kg dm (from memory). Expected values changed 2026-12: CH4 and CO were computed with the
+    # boreal forest biomass factors 6.1 and 127 (a transcription error corrected in the factor table).
+    rows = pick(demo_result.emissions, year=2006, region="Skarrowdale", fire_type="wildfire")
+    co2, ch4, co = (one(pick(rows, pathway=p)) for p in ("fire_co2", "fire_ch4", "fire_co"))
+    fuel = 35 * 336  # 11,760 t dm
+    assert co2["emission_basis_t"] == pytest.approx(fuel * 362 / 1000)  # 4,257 t CO2-C
+    assert ch4["emission_t"] == pytest.approx(fuel * 9 / 1000)  # 105.84 t CH4
+    assert ch4["co2eq_t"] == pytest.approx(fuel * 9 / 1000 * 28)  # 2,963.5 t CO2-eq
+    assert co["emission_t"] == pytest.approx(fuel * 207 / 1000)  # 2,434.3 t CO
