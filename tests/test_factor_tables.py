@@ -18,7 +18,7 @@ TABLES = resource_dir("factor_tables")
 FINGERPRINTS = [
     ("climate_zones_ipcc2006.csv", 20, 6, None, "ee1baceed4c01e93ee7d6f8f8f6f902755511804cd51d971e78975691ab329cb"),
     ("drained_ipcc2006.csv", 29, 19, 124.63, "71e62254df6cc393c7c3cdb813c43dbbfe92c0edf0255dee6a39ccc32ffe5320"),
-    ("drained_ipcc2013ws.csv", 87, 19, 9443.21, "2a71eb0fe856e9ca36a934d3031f0444dfa715a34ae4f7027833d3f00b695cd5"),
+    ("drained_ipcc2013ws.csv", 93, 19, 12300.34, "ca88fa8c88616a62490536170ab225a8628b18ca1f10a29d6078e4cf6a12c652"),
     ("fire_ipcc2013ws.csv", 13, 15, 3031.0, "707411a6ed5b36a6fd77a46072076b84a197285e50b57d803840fe83ed564a6e"),
     ("gwp.csv", 13, 11, 1280.8, "57182511af089f33525d168ae3e8f379e5b927f8173d3944d7aeecc5c87e5aa3"),
     ("pathway_coverage.csv", 28, 8, None, "972741bd042b81a2ff886ddd7be26f6336173059d918702aa26dd75d16d354e7"),
@@ -146,3 +146,45 @@ def test_table_2_6_and_2_7_interval_kind_is_recorded_as_open(library):
                & ~reg["factor_id"].isin(["ws13-t2.6-tro-wild", "ws13-t2.6-tro-presc"])]
     assert len(kept) == 7
     assert kept["verification_note"].str.contains("interval kind open").all()
+
+
+def _ditch(library, **keys):
+    stratum = {k: "" for k in KEYS}
+    stratum.update(keys, soil_status="drained", land_use="grassland")
+    strata = pd.DataFrame([stratum])
+    out = {}
+    for quantity in ("ef_ch4_ditch", "frac_ditch"):
+        best, ambiguous, _ = resolve_defaults(strata, library, "ipcc2013ws", quantity)
+        assert ambiguous.empty
+        out[quantity] = best["factor_id"].iloc[0]
+    return out
+
+
+@pytest.mark.parametrize("keys, ditch, frac", [
+    ({"climate_zone": "temperate", "nutrient_status": "rich", "drainage_depth": "deep"},
+     "ws13-t2.4-bt-ditch-grass-tem", "ws13-t2.4-bt-frac-grass-tem"),
+    ({"climate_zone": "temperate", "nutrient_status": "rich", "drainage_depth": "shallow"},
+     "ws13-t2.4-bt-ditch-grass-shallow-tem", "ws13-t2.4-bt-frac-grass-shallow-tem"),
+    ({"climate_zone": "temperate", "nutrient_status": "poor"},
+     "ws13-t2.4-bt-ditch-grass-nodepth-tem", "ws13-t2.4-bt-frac-grass-nodepth-tem"),
+    ({"climate_zone": "boreal"}, "ws13-t2.4-bt-ditch-grass-nodepth-bor", "ws13-t2.4-bt-frac-grass-nodepth-bor"),
+    ({"climate_zone": "boreal", "drainage_depth": "deep"}, "ws13-t2.4-bt-ditch-grass-bor", "ws13-t2.4-bt-frac-grass"),
+    ({"climate_zone": "boreal", "drainage_depth": "shallow"},
+     "ws13-t2.4-bt-ditch-grass-shallow-bor", "ws13-t2.4-bt-frac-grass-shallow-bor"),
+])
+def test_table_2_4_grassland_ditch_rows_match_the_depth_they_name(library, keys, ditch, frac):
+    # Source: 2013 Wetlands Supplement Table 2.4 (from memory): boreal and temperate drained grassland,
+    # deep-drained 1165 kg CH4/ha of ditch with Frac_ditch 0.05, shallow-drained 527 with 0.03.
+    # Reason: the deep-drained rows had a blank drainage depth and so also served grassland without a
+    # stated depth; now they match deep-drained strata only, boreal shallow-drained grassland gets the
+    # shallow row (it took the deep one), and grassland without a depth gets rows of its own that say
+    # which row is applied (project mapping, DEVELOPERS.md).
+    assert _ditch(library, **keys) == {"ef_ch4_ditch": ditch, "frac_ditch": frac}
+    reg = library.register.set_index("factor_id")
+    deep_values = (1165, 0.05)
+    if "nodepth" in ditch or keys.get("drainage_depth") == "deep":
+        assert (reg.loc[ditch, "value"], reg.loc[frac, "value"]) == deep_values
+    if keys.get("drainage_depth") == "shallow":
+        assert (reg.loc[ditch, "value"], reg.loc[frac, "value"]) == (527, 0.03)
+    if "nodepth" in ditch:
+        assert "deep-drained row applied" in reg.loc[ditch, "row_label"]

@@ -109,3 +109,15 @@ def test_boreal_fire_ch4_and_co_organic_soil_factors(demo_result):
     assert ch4["emission_t"] == pytest.approx(fuel * 9 / 1000)  # 105.84 t CH4
     assert ch4["co2eq_t"] == pytest.approx(fuel * 9 / 1000 * 28)  # 2,963.5 t CO2-eq
     assert co["emission_t"] == pytest.approx(fuel * 207 / 1000)  # 2,434.3 t CO
+
+
+def test_ditch_of_grassland_without_a_stated_depth(demo_result):
+    # Vennmarsh, 1990: 700 ha of drained nutrient-poor temperate grassland, no drainage depth given.
+    # Source: WS2013 Table 2.4 has grassland ditch rows for deep- and shallow-drained land only; the
+    # deep-drained values (1165 kg CH4/ha of ditch, Frac_ditch 0.05) are applied through a row of their own
+    # (project mapping, DEVELOPERS.md), so the register shows the mapping. Numbers unchanged.
+    rows = pick(demo_result.emissions, year=1990, region="Vennmarsh", land_use="grassland", nutrient_status="poor")
+    ditch = one(pick(rows, pathway="ch4_ditch"))
+    assert ditch["factor_id"] == "ws13-t2.4-bt-ditch-grass-nodepth-tem"
+    assert ditch["parameter_id"] == "ws13-t2.4-bt-frac-grass-nodepth-tem"
+    assert ditch["emission_t"] == pytest.approx(700 * 0.05 * 1165 / 1000)
