@@ -18,7 +18,7 @@ TABLES = resource_dir("factor_tables")
 FINGERPRINTS = [
     ("climate_zones_ipcc2006.csv", 20, 6, None, "ee1baceed4c01e93ee7d6f8f8f6f902755511804cd51d971e78975691ab329cb"),
     ("drained_ipcc2006.csv", 29, 19, 124.63, "71e62254df6cc393c7c3cdb813c43dbbfe92c0edf0255dee6a39ccc32ffe5320"),
-    ("drained_ipcc2013ws.csv", 93, 19, 12300.34, "fd1c88940736e839bcde640de63f2a3fe2c9e5193f3985021254e71cacc28e24"),
+    ("drained_ipcc2013ws.csv", 93, 19, 12300.34, "c61c82673f062471e311907836d568a92ffa312993d383ac9e5ba8f0bcfa9db0"),
     ("fire_ipcc2013ws.csv", 13, 15, 3031.0, "707411a6ed5b36a6fd77a46072076b84a197285e50b57d803840fe83ed564a6e"),
     ("gwp.csv", 13, 11, 1280.8, "57182511af089f33525d168ae3e8f379e5b927f8173d3944d7aeecc5c87e5aa3"),
     ("pathway_coverage.csv", 28, 8, None, "972741bd042b81a2ff886ddd7be26f6336173059d918702aa26dd75d16d354e7"),
