@@ -284,6 +284,13 @@ def _factors(args) -> int:
         print(view.to_string(index=False))
     n_mem = int((reg["verification"] == "from_memory").sum())
     print(f"\n{len(reg)} factors; {n_mem} marked from_memory (not yet checked against the published table).")
+    # Rows whose readings of the published table disagree: the note says what differs (factor_tables/).
+    noted = reg["verification_note"].fillna("").str.startswith("conflict")
+    conflicts = reg[(reg["verification"] == "from_memory") & noted]
+    if not conflicts.empty:
+        print(f"\n{len(conflicts)} of them with a known conflict; check these against your copy of the table:")
+        for fid, note in zip(conflicts["factor_id"], conflicts["verification_note"]):
+            print(f"  {fid}: {note}")
     return EXIT_OK
 
 

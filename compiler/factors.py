@@ -31,7 +31,7 @@ from .units import CANONICAL_UNITS, conversion_factor, parse_unit
 QUANTITIES: dict[str, tuple[str, str, tuple[float, float] | None]] = {
     "ef_co2_c_onsite": ("on-site CO2 emission factor (Eq. 2.3 / 3.4)", "t CO2-C ha-1 yr-1", None),
     "ef_co2_c_doc": ("off-site CO2 from dissolved organic carbon (Eq. 2.4 / 3.5)", "t CO2-C ha-1 yr-1", None),
-    "doc_flux_natural": ("natural DOC flux, Eq. 2.5 parameter", "t CO2-C ha-1 yr-1", None),
+    "doc_flux_natural": ("natural DOC flux, Eq. 2.5 parameter", "t DOC-C ha-1 yr-1", None),
     "delta_doc_drainage": ("increase of DOC flux by drainage, Eq. 2.5 parameter", "fraction", None),
     "frac_doc_co2": ("fraction of DOC converted to CO2, Eq. 2.5 parameter", "fraction", (0.0, 1.0)),
     "ef_ch4_soil": ("CH4 emission factor of the land surface (Eq. 2.6 / 3.8)", "kg CH4 ha-1 yr-1", None),

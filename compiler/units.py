@@ -44,6 +44,9 @@ _SPECIES = {
     "N2O-N": ("nitrous_oxide", {"N": 2}),
     "CO": ("carbon_monoxide", {"C": 1, "O": 1}),
     "CO-C": ("carbon_monoxide", {"C": 1}),
+    # Carbon in dissolved organic carbon (the Eq. 2.5 parameter DOC_FLUX_NATURAL): a flux of C that
+    # is not yet a gas, so it converts to nothing but other DOC-C units.
+    "DOC-C": ("dissolved_organic_carbon", {"C": 1}),
 }
 GAS_OF_SPECIES = {"CO2": "CO2", "CO2-C": "CO2", "C": "CO2", "CH4": "CH4", "CH4-C": "CH4",
                   "N2O": "N2O", "N2O-N": "N2O", "CO": "CO", "CO-C": "CO"}
@@ -76,6 +79,7 @@ _AREA_TO_HA = {"m2": 1e-4, "ha": 1.0, "km2": 100.0}
 # Canonical units of the factor tables; every unit in factor_tables/ is one of these.
 CANONICAL_UNITS = (
     "t CO2-C ha-1 yr-1",
+    "t DOC-C ha-1 yr-1",
     "kg CH4 ha-1 yr-1",
     "kg CH4-C ha-1 yr-1",
     "kg N2O-N ha-1 yr-1",
@@ -175,5 +179,7 @@ def tonnes_of_gas_per_unit(unit: str, convention: str = "standard_atomic_weights
     u = parse_unit(unit)
     if u.kind != "flux":
         raise ValueError(f"unit {unit!r} is not a flux per area and year")
+    if u.species not in GAS_OF_SPECIES:
+        raise ValueError(f"unit {unit!r} is not a flux of a greenhouse gas")
     gas = GAS_OF_SPECIES[u.species]
     return gas, u.mass_kg / 1e3 / u.area_ha * basis_ratio(u.species, gas, convention)

@@ -37,6 +37,14 @@ def test_factors_command(capsys):
     assert "ws13-t2.5-bor-crop" not in out
 
 
+def test_factors_command_lists_known_conflicts(capsys):
+    # The register names every from_memory row whose readings disagree, with its note (factor_tables/).
+    code, out, _ = run(capsys, "factors", "--quantity", "ef_fire_ch4")
+    assert code == 0
+    assert "3 of them with a known conflict" in out
+    assert "ws13-t2.7-bt-ch4: conflict: corrected 2026-12 from 6.1 (3.8-8.4) to 9" in out
+
+
 def test_module_entry_point_and_no_traceback(tmp_path):
     bad = tmp_path / "missing.toml"
     proc = subprocess.run([sys.executable, "-m", "compiler", "compile", str(bad), "--out", str(tmp_path / "o")],

@@ -95,3 +95,29 @@ def test_region_override_in_t_co2(demo_result):
     other = one(pick(demo_result.emissions, year=2010, region="Vennmarsh", land_use="grassland",
                      drainage_depth="deep", pathway="co2_onsite"))
     assert other["factor_id"] == "ws13-t2.1-tem-grass-rich-deep"  # region-specific: not Vennmarsh
+
+
+def test_boreal_fire_ch4_and_co_organic_soil_factors(demo_result):
+    # Skarrowdale, 2006: 35 ha of boreal wildfire on drained organic soil.
+    # Source: WS2013 Table 2.6 (336 t dm/ha) and Table 2.7 organic-soil fires, boreal and temperate: CO2-C 362,
+    # CH4 9, CO 207 g/kg dm (from memory). Expected values changed 2026-12: CH4 and CO were computed with the
+    # boreal forest biomass factors 6.1 and 127 (a transcription error corrected in the factor table).
+    rows = pick(demo_result.emissions, year=2006, region="Skarrowdale", fire_type="wildfire")
+    co2, ch4, co = (one(pick(rows, pathway=p)) for p in ("fire_co2", "fire_ch4", "fire_co"))
+    fuel = 35 * 336  # 11,760 t dm
+    assert co2["emission_basis_t"] == pytest.approx(fuel * 362 / 1000)  # 4,257 t CO2-C
+    assert ch4["emission_t"] == pytest.approx(fuel * 9 / 1000)  # 105.84 t CH4
+    assert ch4["co2eq_t"] == pytest.approx(fuel * 9 / 1000 * 28)  # 2,963.5 t CO2-eq
+    assert co["emission_t"] == pytest.approx(fuel * 207 / 1000)  # 2,434.3 t CO
+
+
+def test_ditch_of_grassland_without_a_stated_depth(demo_result):
+    # Vennmarsh, 1990: 700 ha of drained nutrient-poor temperate grassland, no drainage depth given.
+    # Source: WS2013 Table 2.4 has grassland ditch rows for deep- and shallow-drained land only; the
+    # deep-drained values (1165 kg CH4/ha of ditch, Frac_ditch 0.05) are applied through a row of their own
+    # (project mapping, DEVELOPERS.md), so the register shows the mapping. Numbers unchanged.
+    rows = pick(demo_result.emissions, year=1990, region="Vennmarsh", land_use="grassland", nutrient_status="poor")
+    ditch = one(pick(rows, pathway="ch4_ditch"))
+    assert ditch["factor_id"] == "ws13-t2.4-bt-ditch-grass-nodepth-tem"
+    assert ditch["parameter_id"] == "ws13-t2.4-bt-frac-grass-nodepth-tem"
+    assert ditch["emission_t"] == pytest.approx(700 * 0.05 * 1165 / 1000)
