@@ -64,7 +64,6 @@ from __future__ import annotations
 import dataclasses
 import difflib
 import re
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -77,7 +76,8 @@ from .activity import load_overrides
 from .engine import compute
 from .errors import Finding, FindingLog, InputError
 from .metrics import co2_equivalent
-from .settings import Settings
+from .readers import check_size
+from .settings import Settings, parse_toml
 from .units import tonnes_of_gas_per_unit
 from .vocabulary import ALIASES, TERMS, normalise_text
 
@@ -319,14 +319,17 @@ def load_scenarios(path: str | Path | None, settings: Settings) -> list[Scenario
     if not path.is_file():
         problems.add("scenario file not found", "", expected=f"a file at {path}")
         problems.raise_if_any()
+    check_size(path, settings.max_input_mb)  # refused unread above [limits] max_input_mb, as every input
+    raw_bytes = path.read_bytes()
     try:
-        with path.open("rb") as handle:
-            data = tomllib.load(handle)
-    except tomllib.TOMLDecodeError as exc:
-        problems.add(f"not valid TOML: {exc}", "")
-        problems.raise_if_any()
+        text = raw_bytes[3:].decode("utf-8") if raw_bytes.startswith(b"\xef\xbb\xbf") else raw_bytes.decode("utf-8")
     except UnicodeDecodeError:
-        problems.add("not valid TOML: the file is not UTF-8 text", "")
+        problems.add("not valid TOML: the file is not UTF-8 text", "", expected="the scenario file saved as UTF-8 text")
+        problems.raise_if_any()
+    try:
+        data = parse_toml(text)
+    except ValueError as exc:
+        problems.add(str(exc), "")
         problems.raise_if_any()
 
     top = _check_table(data, TOP_KEYS, "", problems)
