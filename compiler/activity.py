@@ -32,6 +32,7 @@ from .errors import FindingLog
 from .factors import KEYS, QUANTITIES, override_weight, unit_kind_ok, check_override_conflicts
 from .readers import MAX_LISTED, ROW, printable, read_table
 from .settings import Settings
+from .textrules import FORMAT_OR_NONCHARACTER, NONCHARACTER, lookalike_letters, non_ascii_characters, odd_characters
 from .vocabulary import KEY_COLUMNS, TERMS, describe_accepted, normalise_column, normalise_text
 
 MAX_AREA_HA = 1e9
@@ -171,12 +172,13 @@ class _Checker:
         self.log, self.file, self.sheet = log, file, sheet
 
     def rows(self, severity: str, check: str, message: str, rows: pd.DataFrame, column: str,
-             found: pd.Series | None = None, expected: str = "") -> None:
+             found: pd.Series | None = None, expected: str = "", cut: bool = True) -> None:
         if rows.empty:
             return
         shown = rows.head(MAX_LISTED)
         for idx, r in shown.iterrows():
-            value = "" if found is None else shorten(str(found.loc[idx]))
+            value = "" if found is None else str(found.loc[idx])
+            value = shorten(value) if cut else value
             self.log.add(severity, check, message, file=self.file, sheet=self.sheet, row=int(r[ROW]),
                          column=column, found=value, expected=expected)
         if len(rows) > MAX_LISTED:
@@ -191,6 +193,44 @@ class _Checker:
 def shorten(text: str, limit: int = SHOWN_CHARS) -> str:
     """A found value as shown in a message: long values cut, with their length."""
     return text if len(text) <= limit else f"{text[:limit]}... ({len(text):,} characters)"
+
+
+def _check_characters(raw: pd.DataFrame, stripped: pd.Series, unflagged: pd.Series, col: Column,
+                      check: _Checker) -> np.ndarray:
+    """Noncharacters (any text), format characters and look-alike letters (names): rows refused.
+
+    Every character concerned is outside ASCII, so only the non-ASCII cells are searched, and the
+    look-alike letters only in their distinct values.
+    """
+    bad = np.zeros(len(raw), dtype=bool)
+    candidates = stripped[unflagged & ~stripped.str.isascii()]
+    if candidates.empty:
+        return bad
+    invisible = candidates.str.contains(NONCHARACTER if col.multiline else FORMAT_OR_NONCHARACTER, regex=True)
+    rows = candidates[invisible]
+    if not rows.empty:
+        found = rows.map(lambda v: f"{shorten(v)} ({odd_characters(v)})")
+        check.rows("error", "text", f"{col.name} holds " + ("a noncharacter" if col.multiline else
+                                                          "an invisible character or a noncharacter"),
+                   raw.loc[rows.index], col.name, found,
+                   "text without noncharacters (U+FFFE, U+FFFF, U+FDD0 to U+FDEF)" if col.multiline else
+                   "visible text: no format characters (zero-width spaces and joiners, soft hyphens, byte-order "
+                   "marks) and no noncharacters (U+FFFE, U+FFFF, U+FDD0 to U+FDEF); retype the name",
+                   cut=False)
+        bad[raw.index.get_indexer(rows.index)] = True
+    if col.multiline:
+        return bad
+    rest = candidates[~invisible]
+    letters = {v: lookalike_letters(v) for v in pd.unique(rest)}
+    letters = {v: found for v, found in letters.items() if found}
+    if letters:
+        rows = rest[rest.isin(list(letters))]
+        found = rows.map(lambda v: f"{shorten(v)} ({odd_characters(v, letters[v])})")
+        check.rows("error", "text", f"{col.name} mixes alphabets within a word (letters that look alike but are "
+                   "others)", raw.loc[rows.index], col.name, found,
+                   "each word in one alphabet: retype the letters named", cut=False)
+        bad[raw.index.get_indexer(rows.index)] = True
+    return bad
 
 
 def _parse_numbers(text: pd.Series, decimal_comma: bool) -> pd.Series:
@@ -257,7 +297,11 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
                 for value, near in unknown.items():
                     rows = raw[(values == value) & bad]
                     expected = describe_accepted(col.term) + (f" (closest: {near})" if near else "")
-                    check.rows("error", "vocabulary", f"unknown {col.name}", rows, col.name, text, expected)
+                    # Terms are ASCII: a look-alike or invisible character is named by its code point.
+                    odd = non_ascii_characters(value.strip())
+                    found = text if not odd else pd.Series(f"{shorten(value.strip())} ({odd})", index=rows.index)
+                    check.rows("error", "vocabulary", f"unknown {col.name}", rows, col.name, found, expected,
+                               cut=not odd)
                 bad_rows |= bad.to_numpy()
             if col.required and "" not in TERMS[col.term]:
                 empty = raw[values == ""]
@@ -279,6 +323,7 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
             check.rows("error", "text", f"{col.name} holds control characters", raw[control], col.name, text,
                        "printable text" + ("" if col.multiline else " on one line"))
             bad_rows |= control.to_numpy()
+            bad_rows |= _check_characters(raw, stripped, ~control, col, check)
             out[col.name] = stripped.where(~blank, col.default)
         else:
             numbers = _parse_numbers(stripped, decimal_comma)

@@ -18,6 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import Finding, SettingsError
+from .textrules import has_invisible, odd_characters
 from .units import MASS_RATIO_CONVENTIONS
 from .vocabulary import TERMS
 
@@ -286,6 +287,13 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
             if isinstance(value, str) and _CONTROL.search(value):
                 problems.append(_err("holds control characters", fname, column=f"{section}.{key}", found=value,
                                      expected="printable text on one line"))
+                continue
+            if isinstance(value, str) and has_invisible(value):
+                problems.append(_err("holds an invisible character or a noncharacter", fname,
+                                     column=f"{section}.{key}", found=f"{value} ({odd_characters(value)})",
+                                     expected="visible text: no format characters (zero-width spaces and joiners, "
+                                              "soft hyphens, byte-order marks) and no noncharacters (U+FFFE, "
+                                              "U+FFFF, U+FDD0 to U+FDEF)"))
                 continue
             if allowed is not None and value not in allowed:
                 near = difflib.get_close_matches(str(value), [a for a in allowed if a], n=1)

@@ -67,6 +67,45 @@ CASES = [
     ("settings: arrays nested 50 deep", lambda f: edit_settings(f, 'name = "Test inventory"',
                                                                       "name = " + "[" * 50 + '"x"' + "]" * 50),
      "inventory.toml: arrays or tables nested more than 8 levels deep (at inventory.name[0][0][0][0][0][0])"),
+    # --- 5. invisible characters, noncharacters and look-alike letters
+    ("zero-width space in region", lambda f: small(f, text=csv_text(ROW.replace("Testvale", "Test\u200bvale"))),
+     "activity.csv, row 2, column region: region holds an invisible character or a noncharacter; found "
+     "'Test\\u200bvale (U+200B ZERO WIDTH SPACE at position 5)'; expected visible text: no format characters"),
+    ("soft hyphen and byte-order mark in region",
+     lambda f: small(f, text=csv_text(ROW.replace("Testvale", "Test\u00advale\ufeff"))),
+     "found 'Test\\xadvale\\ufeff (U+00AD SOFT HYPHEN at position 5, U+FEFF ZERO WIDTH NO-BREAK SPACE at "
+     "position 10)'"),
+    ("noncharacter U+FFFF in region", lambda f: small(f, text=csv_text(ROW.replace("Testvale", "Test\uffffvale"))),
+     "activity.csv, row 2, column region: region holds an invisible character or a noncharacter; found "
+     "'Test\\uffffvale (U+FFFF NONCHARACTER at position 5)'"),
+    ("noncharacter U+FDD0 in an override note", lambda f: demo(f, "overrides.csv", "measured 2005-2020",
+                                                               "measured \ufdd0 2005-2020"),
+     "overrides.csv, row 2, column note: note holds a noncharacter; found 'measured \\ufdd0 2005-2020 at three "
+     "invented towers (U+FDD0 NONCHARACTER at position 10)'; expected text without noncharacters"),
+    ("noncharacter U+10FFFF in a review finding", lambda f: demo(f, "review_log.csv", "(drained grassland)",
+                                                                 "(drained grassland\U0010ffff)"),
+     "review_log.csv, row 2, column finding: finding holds a noncharacter; found"),
+    ("Cyrillic o inside cropland", lambda f: small(f, text=csv_text(ROW.replace("cropland", "cr\u043epland"))),
+     "activity.csv, row 2, column land_use: unknown land_use; found 'cr\u043epland (U+043E CYRILLIC SMALL LETTER O "
+     "at position 3)'; expected forest_land | cropland"),
+    ("zero-width joiner inside drained", lambda f: small(f, text=csv_text(ROW.replace("drained", "drai\u200dned"))),
+     "activity.csv, row 2, column soil_status: unknown soil_status; found 'drai\\u200dned (U+200D ZERO WIDTH "
+     "JOINER at position 5)'"),
+    ("Cyrillic e inside a region name", lambda f: small(f, text=csv_text(ROW.replace("Testvale", "T\u0435stvale"))),
+     "activity.csv, row 2, column region: region mixes alphabets within a word (letters that look alike but are "
+     "others); found 'T\u0435stvale (U+0435 CYRILLIC SMALL LETTER IE at position 2)'; expected each word in one "
+     "alphabet"),
+    ("Greek capital tau starting a fire region", lambda f: demo(f, "fires.csv", "1997,Kelavi Lowlands",
+                                                                "1997,\u03a4elavi Lowlands"),
+     "fires.csv, row 2, column region: region mixes alphabets within a word (letters that look alike but are "
+     "others); found '\u03a4elavi Lowlands (U+03A4 GREEK CAPITAL LETTER TAU at position 1)'"),
+    ("settings: zero-width space in the inventory name",
+     lambda f: edit_settings(f, 'name = "Test inventory"', 'name = "Test\u200binventory"'),
+     "inventory.toml, column inventory.name: holds an invisible character or a noncharacter; found "
+     "'Test\\u200binventory (U+200B ZERO WIDTH SPACE at position 5)'"),
+    ("settings: noncharacter in a path", lambda f: edit_settings(f, '"activity.csv"', '"activity\ufffe.csv"'),
+     "inventory.toml, column inputs.activity: holds an invisible character or a noncharacter; found "
+     "'activity\\ufffe.csv (U+FFFE NONCHARACTER at position 9)'"),
     ("settings: tables nested 20 deep", lambda f: append_settings(f, nested_tables(20)),
      "inventory.toml: arrays or tables nested more than 8 levels deep (at timeseries.fill_by_region.l0.l1.l2.l3.l4"),
 ]
@@ -82,3 +121,36 @@ def test_compile_date_at_the_ends_of_the_zip_range_is_accepted(tmp_path):
     for date in ("1980-01-01", "2107-12-31"):
         settings = edit_settings(tmp_path / date, 'compile_date = "2026-01-01"', f'compile_date = "{date}"')
         assert load_settings(settings).compile_date == date
+
+
+def test_format_characters_listed_are_those_of_unicodedata():
+    # Reference: Python's unicodedata (Unicode 14.0 in Python 3.11): every code point of general category Cf is
+    # in textrules.FORMAT_RANGES; the list holds Unicode 15.0, so it may name a few more.
+    import unicodedata
+
+    from compiler.textrules import FORMAT_RANGES, NONCHARACTER_RANGES
+
+    listed = {c for a, b in FORMAT_RANGES for c in range(a, b + 1)}
+    format_chars = {c for c in range(0x110000) if unicodedata.category(chr(c)) == "Cf"}
+    assert format_chars <= listed
+    assert all(unicodedata.category(chr(c)) in ("Cf", "Cn") for c in listed)
+    # Noncharacters: 66 code points (The Unicode Standard, Section 23.7), all unassigned (Cn).
+    nonchars = [c for a, b in NONCHARACTER_RANGES for c in range(a, b + 1)]
+    assert len(nonchars) == 66 and all(unicodedata.category(chr(c)) == "Cn" for c in nonchars)
+
+
+TEXT_ACCEPTED = [
+    ("Cyrillic region name", "Москва-Тест"),
+    ("accented Latin region name", "Zürich-Süd Ærø"),
+    ("Greek region name", "Αθήνα Νότος"),
+    ("kanji and kana in one word", "東京とうきょう"),
+    ("digits and Latin letters", "Zone 7b"),
+]
+
+
+@pytest.mark.parametrize("case, region", TEXT_ACCEPTED, ids=[c[0] for c in TEXT_ACCEPTED])
+def test_names_in_one_alphabet_are_accepted(case, region, tmp_path, capsys):
+    settings = small(tmp_path / "inputs", text=csv_text(ROW.replace("Testvale", region)))
+    code = main(["check", str(settings)])
+    out, err = capsys.readouterr()
+    assert code == 0, out + err
