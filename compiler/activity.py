@@ -32,23 +32,18 @@ from .errors import FindingLog
 from .factors import KEYS, QUANTITIES, override_weight, unit_kind_ok, check_override_conflicts
 from .readers import MAX_LISTED, ROW, printable, read_table
 from .settings import Settings
-from .textrules import FORMAT_OR_NONCHARACTER, NONCHARACTER, lookalike_letters, non_ascii_characters, odd_characters
+from .textrules import (FORMAT_OR_NONCHARACTER, LINE_CONTROL, MAX_NAME_CHARS, MAX_NOTE_CHARS,  # noqa: F401
+                        MULTILINE_CONTROL, NONCHARACTER, SHOWN_CHARS, lookalike_letters, non_ascii_characters,
+                        odd_characters, shorten)
 from .vocabulary import KEY_COLUMNS, TERMS, describe_accepted, normalise_column, normalise_text
 
 MAX_AREA_HA = 1e9
 MAX_MAGNITUDE = 1e9
-MAX_TEXT_CHARS = 200
-MAX_NOTE_CHARS = 2000
+MAX_TEXT_CHARS = MAX_NAME_CHARS
 MISSING_MARKERS = ("nan", "na", "n/a", "null", "none", "-", "--", "#n/a", "missing")
-SHOWN_CHARS = 60  # a longer found value is cut in messages
 YEAR_RANGE = (1900, 2200)
 AREA_COLUMNS = ("area_ha", "burned_ha")
 AREA_BOUND_NOTE = " ha (the world's peatlands cover about 4e8 ha)"
-# C0 and C1 controls, DEL, bidirectional overrides and isolates, line and paragraph separators;
-# names also refuse tab and line breaks.
-_CONTROLS = "\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069"
-MULTILINE_CONTROL = f"[{_CONTROLS}]"
-LINE_CONTROL = f"[{_CONTROLS}\t\n\r]"
 
 HEADER_ALIASES = {
     "area": "area_ha", "area_(ha)": "area_ha", "hectares": "area_ha", "burned_area_ha": "burned_ha",
@@ -188,11 +183,6 @@ class _Checker:
     def one(self, severity: str, check: str, message: str, column: str = "", found: str = "", expected: str = ""):
         self.log.add(severity, check, message, file=self.file, sheet=self.sheet, column=printable(column),
                      found=found, expected=expected)
-
-
-def shorten(text: str, limit: int = SHOWN_CHARS) -> str:
-    """A found value as shown in a message: long values cut, with their length."""
-    return text if len(text) <= limit else f"{text[:limit]}... ({len(text):,} characters)"
 
 
 def _check_characters(raw: pd.DataFrame, stripped: pd.Series, unflagged: pd.Series, col: Column,

@@ -44,6 +44,14 @@ _FORMAT_OR_NONCHARACTER = re.compile(FORMAT_OR_NONCHARACTER)
 # purpose (Japanese writes kanji and kana in one word) and are left alone.
 LOOKALIKE_SCRIPTS = {"LATIN", "CYRILLIC", "GREEK", "ARMENIAN", "CHEROKEE", "COPTIC", "FULLWIDTH", "MATHEMATICAL"}
 SHOWN_CODE_POINTS = 5
+# C0 and C1 controls, DEL, bidirectional overrides and isolates, line and paragraph separators; one-line
+# text (names) also refuses tab and line breaks.
+CONTROLS = "\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069"
+MULTILINE_CONTROL = f"[{CONTROLS}]"
+LINE_CONTROL = f"[{CONTROLS}\t\n\r]"
+MAX_NAME_CHARS = 200  # names and other short text
+MAX_NOTE_CHARS = 2000  # citations, notes, descriptions
+SHOWN_CHARS = 60  # a longer found value is cut in messages
 
 
 def code_point(char: str) -> str:
@@ -109,3 +117,32 @@ def non_ascii_characters(text: str) -> str:
     shown = ", ".join(f"{code_point(c)} at position {i + 1}" for i, c in odd[:SHOWN_CODE_POINTS])
     more = len(odd) - SHOWN_CODE_POINTS
     return shown + (f" and {more} more" if more > 0 else "")
+
+
+def shorten(text: str, limit: int = SHOWN_CHARS) -> str:
+    """A found value as shown in a message: long values cut, with their length."""
+    return text if len(text) <= limit else f"{text[:limit]}... ({len(text):,} characters)"
+
+
+def text_problem(text: str, max_chars: int = MAX_NAME_CHARS, one_line: bool = True,
+                 name: bool = True) -> tuple[str, str, str] | None:
+    """(message, found, expected) for a text that breaks the rules of the readers, else None.
+
+    The rules of the CSV and workbook readers for one value (a name when ``name``: no format characters,
+    no look-alike letters): length, control characters, noncharacters.
+    """
+    if len(text) > max_chars:
+        return (f"longer than {max_chars} characters", shorten(text), f"at most {max_chars} characters")
+    if re.search(LINE_CONTROL if one_line else MULTILINE_CONTROL, text):
+        return ("holds control characters", shorten(text), "printable text" + (" on one line" if one_line else ""))
+    if has_invisible(text, allow_format=not name):
+        return (("holds an invisible character or a noncharacter" if name else "holds a noncharacter"),
+                f"{shorten(text)} ({odd_characters(text)})",
+                "visible text: no format characters (zero-width spaces and joiners, soft hyphens, byte-order marks) "
+                "and no noncharacters (U+FFFE, U+FFFF, U+FDD0 to U+FDEF)" if name else
+                "text without noncharacters (U+FFFE, U+FFFF, U+FDD0 to U+FDEF)")
+    letters = lookalike_letters(text) if name else []
+    if letters:
+        return ("mixes alphabets within a word (letters that look alike but are others)",
+                f"{shorten(text)} ({odd_characters(text, letters)})", "each word in one alphabet: retype the letters named")
+    return None

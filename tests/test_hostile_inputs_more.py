@@ -154,3 +154,116 @@ def test_names_in_one_alphabet_are_accepted(case, region, tmp_path, capsys):
     code = main(["check", str(settings)])
     out, err = capsys.readouterr()
     assert code == 0, out + err
+
+
+# ---------------------------------------------------------------- 4. scenario files (the spec-reading part)
+
+SCENARIO_HEAD = '[[scenario]]\nname = "baseline"\n'
+
+
+def rewet(**keys) -> str:
+    body = {"kind": '"rewet"', "share": "0.5", "target_year": "2030", **keys}
+    return '[[scenario]]\nname = "r"\n[[scenario.measure]]\n' + "".join(f"{k} = {v}\n" for k, v in body.items())
+
+
+def drain(**keys) -> str:
+    body = {"kind": '"more_drainage"', "region": '"Testvale"', "climate_zone": '"temperate"',
+            "land_use": '"cropland"', "area_ha_per_year": "10.0", **keys}
+    return '[[scenario]]\nname = "d"\n[[scenario.measure]]\n' + "".join(f"{k} = {v}\n" for k, v in body.items())
+
+
+def initial_ch4(value: str) -> str:
+    return (rewet() + '[scenario.measure.initial_ch4]\nmode = "multiply"\nvalue = ' + value
+            + '\nyears = 5\ncitation = "Invented note for a test"\n')
+
+
+SCENARIO_CASES = [
+    # rates: infinite, not a number, astronomically large
+    ("drainage rate inf", SCENARIO_HEAD + drain(area_ha_per_year="inf"),
+     "column scenario.d.measure[1].area_ha_per_year: not a finite number; found 'inf'; expected a finite number"),
+    ("drainage rate 1e300", SCENARIO_HEAD + drain(area_ha_per_year="1e300"),
+     "column scenario.d.measure[1].area_ha_per_year: above 1e9 in magnitude; found '1e+300'; expected at most "
+     "1,000,000,000 in magnitude"),
+    ("drainage rate as a huge integer", SCENARIO_HEAD + drain(area_ha_per_year="9223372036854775807"),
+     "column scenario.d.measure[1].area_ha_per_year: above 1e9 in magnitude; found '9.22337e+18'"),
+    ("ditch fraction nan", SCENARIO_HEAD + drain(ditch_fraction="nan"),
+     "column scenario.d.measure[1].ditch_fraction: not a finite number; found 'nan'"),
+    ("share -inf", SCENARIO_HEAD + rewet(share="-inf"),
+     "column scenario.r.measure[1].share: not a finite number; found '-inf'"),
+    ("initial CH4 multiplier 1e308", SCENARIO_HEAD + initial_ch4("1e308"),
+     "column scenario.r.measure[1].initial_ch4.value: above 1e9 in magnitude; found '1e+308'"),
+    # names and descriptions: control and terminal-escape characters, invisible characters, length
+    ("terminal escape in a name", SCENARIO_HEAD + '[[scenario]]\nname = "red\\u001b[31mflag"\n',
+     "column scenario[2].name: holds control characters; found 'red\\x1b[31mflag'; expected printable "
+     "text on one line"),
+    ("bell and line break in a description",
+     SCENARIO_HEAD + '[[scenario]]\nname = "x"\ndescription = "one\\u0007two\\nthree"\n',
+     "column scenario.x.description: holds control characters; found 'one\\x07two\\nthree'"),
+    ("bidi override in a description", SCENARIO_HEAD + '[[scenario]]\nname = "x"\ndescription = "a\\u202eb"\n',
+     "column scenario.x.description: holds control characters; found 'a\\u202eb'"),
+    ("zero-width space in a name", SCENARIO_HEAD + '[[scenario]]\nname = "half\\u200brewetted"\n',
+     "column scenario[2].name: holds an invisible character or a noncharacter; found "
+     "'half\\u200brewetted (U+200B ZERO WIDTH SPACE at position 5)'"),
+    ("noncharacter in a description", SCENARIO_HEAD + '[[scenario]]\nname = "x"\ndescription = "a\\uFFFFb"\n',
+     "column scenario.x.description: holds a noncharacter; found 'a\\uffffb (U+FFFF NONCHARACTER at position 2)'"),
+    ("Cyrillic letter in a region filter", SCENARIO_HEAD + rewet(region='["T\\u0435stvale"]'),
+     "column scenario.r.measure[1].region: mixes alphabets within a word (letters that look alike but are "
+     "others); found 'T\u0435stvale (U+0435 CYRILLIC SMALL LETTER IE at position 2)'"),
+    ("name of 201 characters", SCENARIO_HEAD + f'[[scenario]]\nname = "{"n" * 201}"\n',
+     "column scenario[2].name: longer than 200 characters; found '" + "n" * 60
+     + "... (201 characters)'; expected at most 200 characters"),
+    ("description of 100,000 characters",
+     SCENARIO_HEAD + f'[[scenario]]\nname = "x"\ndescription = "{"d" * 100_000}"\n',
+     "column scenario.x.description: longer than 2000 characters; found '" + "d" * 60 + "... (100,000 characters)'"),
+    ("citation of 2,001 characters", SCENARIO_HEAD + rewet() + '[scenario.measure.initial_ch4]\nmode = "multiply"\n'
+     f'value = 0.5\nyears = 5\ncitation = "{"c" * 2001}"\n',
+     "column scenario.r.measure[1].initial_ch4.citation: longer than 2000 characters"),
+    # nesting and size
+    ("arrays nested 3,000 deep", "horizon = " + "[" * 3000 + "]" * 3000 + "\n" + SCENARIO_HEAD,
+     "scenarios.toml: arrays or tables nested too deeply to read (more than 8 levels are refused)"),
+    ("tables nested 12 deep", SCENARIO_HEAD + rewet() + "[scenario.measure.initial_ch4" + ".x" * 12 + "]\ny = 1\n",
+     "scenarios.toml: arrays or tables nested more than 8 levels deep (at scenario[1].measure[0].initial_ch4.x.x"),
+]
+
+
+@pytest.fixture(scope="module")
+def scenario_settings(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("scenario-inputs")
+    return load_settings(write_inventory(folder, [stratum(area_ha=100.0)]))
+
+
+@pytest.mark.parametrize("case, body, expected", SCENARIO_CASES, ids=[c[0] for c in SCENARIO_CASES])
+def test_hostile_scenario_file(case, body, expected, scenario_settings, tmp_path):
+    from compiler.scenarios import load_scenarios
+
+    path = tmp_path / "scenarios.toml"
+    path.write_text(body, encoding="utf-8")
+    with pytest.raises(InputError) as err:
+        load_scenarios(path, scenario_settings)
+    text = str(err.value)
+    assert f"{path}" in text and expected in text, text
+    assert "\x1b" not in text and "\a" not in text and "\u202e" not in text
+
+
+def test_scenario_file_above_the_size_limit_is_not_read(scenario_settings, tmp_path, monkeypatch):
+    from compiler.scenarios import load_scenarios
+
+    path = tmp_path / "scenarios.toml"
+    path.write_text(SCENARIO_HEAD + "# " + "x" * 2000 + "\n", encoding="utf-8")
+    monkeypatch.setattr(Path, "read_bytes", lambda self: pytest.fail(f"{self} was read"))
+    small_limit = scenario_settings.__class__(**{**scenario_settings.__dict__, "max_input_mb": 0.001})
+    with pytest.raises(InputError, match=r"scenarios.toml: file is 2,\d+ bytes, above the limit of 0.001 MiB "
+                                         r"\(settings \[limits\] max_input_mb\); it was not read"):
+        load_scenarios(path, small_limit)
+
+
+def test_scenario_escape_never_reaches_the_terminal(tmp_path, capsys):
+    settings = write_inventory(tmp_path, [stratum(area_ha=100.0)])
+    path = tmp_path / "scenarios.toml"
+    path.write_text(SCENARIO_HEAD + '[[scenario]]\nname = "x\\u001b]0;owned\\u0007"\ndescription = "\\u001b[2J"\n',
+                    encoding="utf-8")
+    code = main(["scenarios", str(settings), "--scenarios", str(path), "--out", str(tmp_path / "out")])
+    out, err = capsys.readouterr()
+    assert code == 2 and "holds control characters" in err, err
+    assert "\x1b" not in out + err and "\a" not in out + err
+    assert not (tmp_path / "out").exists()
