@@ -250,11 +250,19 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
     given = [c for c in raw.columns if c != ROW]
     header_map = {c: _header(c) for c in given}
     internal = [header_map[c] for c in given]  # one entry per column, even when two headers are spelt alike
-    duplicated = sorted({h for h in internal if h and internal.count(h) > 1})
-    for h in duplicated:
-        spelt = [str(c) for c in given if header_map[c] == h]
-        check.one("error", "columns", "column appears more than once", column=h, found=", ".join(spelt),
+    spellings: dict[str, list[str]] = {}
+    for c, h in zip(given, internal):  # one pass: linear in the number of columns
+        spellings.setdefault(h, []).append(str(c))
+    duplicated = sorted(h for h, spelt in spellings.items() if h and len(spelt) > 1)
+    for h in duplicated[:MAX_LISTED]:
+        spelt = spellings[h]
+        check.one("error", "columns", "column appears more than once", column=h,
+                  found=shorten(", ".join(spelt[:MAX_LISTED]) + (f" and {len(spelt) - MAX_LISTED:,} more"
+                                                                  if len(spelt) > MAX_LISTED else ""), 400),
                   expected="each column once")
+    if len(duplicated) > MAX_LISTED:
+        check.one("error", "columns", f"{len(duplicated) - MAX_LISTED:,} more columns appear more than once "
+                  "(not listed)", expected="each column once")
     if duplicated:
         return pd.DataFrame()
     raw = raw.rename(columns=header_map)
@@ -268,7 +276,8 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
     extra = [c for c in raw.columns if c not in names and c != ROW]
     if extra:
         check.one("warning", "columns", "column not used by the compiler (kept in your file, ignored here)",
-                  column=", ".join(shorten(printable(c), 40) for c in extra))
+                  column=", ".join(shorten(printable(c), 40) for c in extra[:MAX_LISTED])
+                  + (f" and {len(extra) - MAX_LISTED:,} more" if len(extra) > MAX_LISTED else ""))
     out = pd.DataFrame({ROW: raw[ROW].to_numpy()}, index=raw.index)
     bad_rows = np.zeros(len(raw), dtype=bool)
     for col in spec:

@@ -204,6 +204,12 @@ def _columns(path: Path, log: FindingLog) -> dict | None:
         log.add("error", "read", f"not a readable Parquet file ({type(exc).__name__})", file=str(path),
                 expected="a Parquet file with one row per parcel and year")
         return None
+    from .readers import MAX_COLUMNS
+
+    if len(schema) > MAX_COLUMNS:
+        log.add("error", "columns", f"the file has {len(schema):,} columns, above the limit of {MAX_COLUMNS:,}",
+                file=str(path), expected=f"at most {MAX_COLUMNS:,} columns (a parcel file needs about 15)")
+        return None
     found: dict[str, tuple[str, str]] = {}
     duplicated = []
     for field in schema:

@@ -34,6 +34,7 @@ from .errors import Finding, InputError
 
 ROW = "_row"
 MAX_LISTED = 10  # rows listed per problem before "and N more"
+MAX_COLUMNS = 1000  # columns of an input table (the widest input format has 18)
 MIB = 1024 * 1024
 SNIFF_BYTES = 4096
 ZIP_MAGIC = b"PK\x03\x04"
@@ -335,6 +336,10 @@ def _frame_from_rows(rows: list[list[str]], fname: str, sheet: str) -> pd.DataFr
         header.pop()
     if not header:
         raise _error("the header row (row 1) is blank", fname, sheet=sheet, row=1, expected="column names in row 1")
+    if len(header) > MAX_COLUMNS:
+        raise _error(f"the header row has {len(header):,} columns, above the limit of {MAX_COLUMNS:,}", fname,
+                     sheet=sheet, row=1, expected=f"at most {MAX_COLUMNS:,} columns (the input tables use about 15; "
+                                                  "move other data to another file)")
     if ROW in (h.strip().lower() for h in header):
         raise _error(f"the column name {ROW} is reserved", fname, sheet=sheet, row=1, column=ROW,
                      expected="another column name")

@@ -106,6 +106,17 @@ CASES = [
     ("settings: noncharacter in a path", lambda f: edit_settings(f, '"activity.csv"', '"activity\ufffe.csv"'),
      "inventory.toml, column inputs.activity: holds an invisible character or a noncharacter; found "
      "'activity\\ufffe.csv (U+FFFE NONCHARACTER at position 9)'"),
+    # --- 7. very wide tables: at most 1,000 columns, duplicates found in one pass
+    ("a million columns", lambda f: small(f, text=csv_text(ROW + "," * 999_991,
+                                                          header=HEADER + "".join(f",x{i}" for i in range(999_991)))),
+     "activity.csv, row 1: the header row has 1,000,000 columns, above the limit of 1,000; expected at most 1,000 "
+     "columns"),
+    ("1,001 columns in a workbook", lambda f: small(f, data=workbook(edit=lambda book: [
+        book.active.cell(row=1, column=10 + i, value=f"extra{i}") for i in range(992)]), name="activity.xlsx"),
+     "activity.xlsx, sheet activity, row 1: the header row has 1,001 columns, above the limit of 1,000"),
+    ("one column 991 times", lambda f: small(f, text=csv_text(ROW + ",n" * 991, header=HEADER + ",note" * 991)),
+     "activity.csv, column note: column appears more than once; found 'note, note, note, note, note, note, note, "
+     "note, note, note and 981 more'; expected each column once"),
     ("settings: tables nested 20 deep", lambda f: append_settings(f, nested_tables(20)),
      "inventory.toml: arrays or tables nested more than 8 levels deep (at timeseries.fill_by_region.l0.l1.l2.l3.l4"),
 ]
