@@ -278,3 +278,63 @@ def test_scenario_escape_never_reaches_the_terminal(tmp_path, capsys):
     assert code == 2 and "holds control characters" in err, err
     assert "\x1b" not in out + err and "\a" not in out + err
     assert not (tmp_path / "out").exists()
+
+
+# ---------------------------------------------------------------- 6. a compressed previous submission
+
+def gzip_bomb(unpacked_mib: int, name: str = "emissions.csv.gz"):
+    """A previous submission whose gzip is small and unpacks to ``unpacked_mib`` MiB (the header, then lines of
+    zeros), with a 1 MiB limit in the settings."""
+    def build(folder: Path) -> Path:
+        shutil.copytree(DEMO, folder)
+        settings = folder / "inventory.toml"
+        path = folder / "previous" / "emissions.csv.gz"
+        header = gzip.decompress(path.read_bytes()).split(b"\n", 1)[0] + b"\n"
+        buffer = io.BytesIO()
+        with gzip.GzipFile(fileobj=buffer, mode="wb", mtime=0) as packed:
+            packed.write(header)
+            line = b"0" * 1023 + b"\n"
+            for _ in range(unpacked_mib * 1024):
+                packed.write(line)
+        path.unlink()
+        (folder / "previous" / name).write_bytes(buffer.getvalue())
+        text = settings.read_text(encoding="utf-8").replace("previous/emissions.csv.gz", f"previous/{name}")
+        settings.write_text(text + "\n[limits]\nmax_input_mb = 1\n", encoding="utf-8")
+        assert len(buffer.getvalue()) < 1024 * 1024
+        return settings
+    return build
+
+
+GZIP_CASES = [
+    pytest.param(gzip_bomb(2), "emissions.csv.gz: the file unpacks to more than 1 MiB, above the limit (settings "
+                 "[limits] max_input_mb); reading stopped there; expected an emissions.csv of at most 1 MiB unpacked",
+                 id="gzip unpacking to 2 MiB"),
+    pytest.param(gzip_bomb(64), "emissions.csv.gz: the file unpacks to more than 1 MiB", id="gzip unpacking to 64 MiB"),
+    pytest.param(gzip_bomb(8, name="emissions.csv"), "emissions.csv: the file unpacks to more than 1 MiB",
+                 id="gzip named .csv"),
+]
+
+
+@pytest.mark.parametrize("build, expected", GZIP_CASES)
+def test_compressed_previous_submission_limited_by_unpacked_size(build, expected, tmp_path, capsys, previous_output):
+    check_refused(build, expected, tmp_path, capsys, previous_output)
+
+
+def test_unpacking_stops_at_the_limit(tmp_path, monkeypatch):
+    # The gzip of 64 MiB is refused after about 1 MiB unpacked, not after reading it all.
+    from compiler import recalculations
+
+    settings = gzip_bomb(64)(tmp_path / "inputs")
+    counted = []
+    real = recalculations._Unpacked.readinto
+
+    def readinto(self, buffer):
+        try:
+            return real(self, buffer)
+        finally:
+            counted.append(self.count)
+
+    monkeypatch.setattr(recalculations._Unpacked, "readinto", readinto)
+    with pytest.raises(InputError, match="unpacks to more than 1 MiB"):
+        recalculations.load_export(settings.parent / "previous" / "emissions.csv.gz", 1)
+    assert 1024 * 1024 < max(counted) <= 2 * 1024 * 1024
