@@ -338,3 +338,73 @@ def test_unpacking_stops_at_the_limit(tmp_path, monkeypatch):
     with pytest.raises(InputError, match="unpacks to more than 1 MiB"):
         recalculations.load_export(settings.parent / "previous" / "emissions.csv.gz", 1)
     assert 1024 * 1024 < max(counted) <= 2 * 1024 * 1024
+
+
+# ---------------------------------------------------------------- 9. DOCTYPE in any part read as XML
+
+def renamed_part(data: bytes, old: str, new: str, edit=lambda xml: xml) -> bytes:
+    """The workbook with part ``old`` moved to ``new`` (relationships and content types follow), ``edit``ed."""
+    source = zipfile.ZipFile(io.BytesIO(data))
+    short_old, short_new = old.split("/", 1)[1], new.split("/", 1)[1]
+    buffer = io.BytesIO()
+    with zipfile.ZipFile(buffer, "w", zipfile.ZIP_DEFLATED) as target:
+        for info in source.infolist():
+            content = source.read(info.filename)
+            if info.filename == old:
+                target.writestr(new, edit(content))
+                continue
+            if info.filename.endswith((".rels", "[Content_Types].xml")):
+                content = content.replace(old.encode(), new.encode()).replace(short_old.encode(), short_new.encode())
+            target.writestr(info.filename, content)
+    return buffer.getvalue()
+
+
+def with_part(data: bytes, name: str, content: bytes) -> bytes:
+    source = zipfile.ZipFile(io.BytesIO(data))
+    buffer = io.BytesIO()
+    with zipfile.ZipFile(buffer, "w", zipfile.ZIP_DEFLATED) as target:
+        for info in source.infolist():
+            target.writestr(info.filename, source.read(info.filename))
+        target.writestr(name, content)
+    return buffer.getvalue()
+
+
+DOCTYPE = b'<?xml version="1.0"?><!DOCTYPE x [<!ENTITY e "expanded">]>'
+
+
+def doctype_in_front(xml: bytes) -> bytes:
+    return DOCTYPE + (xml.split(b"?>", 1)[1] if xml.startswith(b"<?xml") else xml)
+
+
+XLSX_CASES = [
+    pytest.param(lambda f: small(f, data=renamed_part(workbook(), "xl/worksheets/sheet1.xml",
+                                                      "xl/worksheets/sheet1.bin", doctype_in_front),
+                                 name="activity.xlsx"),
+                 "activity.xlsx: the workbook part xl/worksheets/sheet1.bin declares a DOCTYPE or XML entities; "
+                 "refused unread (spreadsheet programs never write one; entity expansion can exhaust memory); "
+                 "expected an .xlsx workbook saved by a spreadsheet program", id="sheet part named .bin"),
+    pytest.param(lambda f: small(f, data=renamed_part(workbook(), "xl/styles.xml", "xl/styles",
+                                                      lambda x: doctype_in_front(x).decode().encode("utf-16")),
+                                 name="activity.xlsx"),
+                 "activity.xlsx: the workbook part xl/styles declares a DOCTYPE or XML entities; refused unread",
+                 id="UTF-16 styles part without a suffix"),
+    pytest.param(lambda f: small(f, data=with_part(workbook(), "xl/media/image1.png", b"\n  " + DOCTYPE + b"<x/>"),
+                                 name="activity.xlsx"),
+                 "activity.xlsx: the workbook part xl/media/image1.png declares a DOCTYPE or XML entities",
+                 id="XML named .png"),
+]
+
+
+@pytest.mark.parametrize("build, expected", XLSX_CASES)
+def test_doctype_refused_in_every_part_read_as_xml(build, expected, tmp_path, capsys, previous_output):
+    check_refused(build, expected, tmp_path, capsys, previous_output)
+
+
+def test_binary_part_holding_doctype_bytes_is_read(tmp_path, capsys):
+    # An image is not parsed as XML: bytes that spell a DOCTYPE inside it do not refuse the workbook.
+    png = b"\x89PNG\r\n\x1a\n" + DOCTYPE + b"\x00" * 64
+    settings = small(tmp_path / "inputs", data=with_part(workbook(), "xl/media/image1.png", png),
+                     name="activity.xlsx")
+    code = main(["check", str(settings)])
+    out, err = capsys.readouterr()
+    assert code == 0, out + err
