@@ -484,6 +484,7 @@ def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
         return pd.DataFrame()
     frame, sheet = _load(settings.fires, "", FIRE_COLUMNS, log, settings)
     if not frame.empty:
+        frame.attrs["file"], frame.attrs["sheet"] = str(settings.fires), sheet
         frame["year"] = frame["year"].astype("Int64")
         keys = ["year", "region", "climate_zone", "land_use", "soil_status", "fire_type", "remaining_or_converted"]
         good = frame[~frame["_bad"]]
@@ -492,6 +493,35 @@ def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
             "error", "duplicate", "the same fire (year, region, stratum, fire type) appears in more than one row", dup,
             "year", dup["region"].astype(str), "one row per fire stratum and year (add the burnt areas together)")
     return frame
+
+
+FIRE_STRATUM = ["year", "region", "climate_zone", "land_use", "soil_status"]
+
+
+def check_fires_within_strata(fires: pd.DataFrame, activity: pd.DataFrame, log: FindingLog) -> None:
+    """A fire burns at most the area of its stratum: burned_ha <= the activity area of its year, region,
+    climate zone, land use and soil status (after gap filling; remaining and converted land together, all
+    nutrient statuses, drainage depths and subtypes). Each fire row above it is an error naming both figures.
+    A fire whose stratum has no activity row is not checked here."""
+    if fires is None or fires.empty or activity is None or activity.empty:
+        return
+    good = fires[~fires["_bad"]]
+    if good.empty:
+        return
+    keys = good[FIRE_STRATUM].astype({"year": "int64"})
+    area = activity.assign(year=activity["year"].astype("int64")).groupby(FIRE_STRATUM, sort=False)["area_ha"].sum()
+    available = keys.merge(area.rename("stratum_ha").reset_index(), on=FIRE_STRATUM, how="left")["stratum_ha"]
+    available = pd.Series(available.to_numpy(), index=good.index)
+    # A fire in a stratum without activity rows is left alone (the inventory may report fires alone).
+    over = good[available.notna() & (good["burned_ha"] > available)]
+    found = pd.Series([f"burned_ha {b:,.6g} ha; the stratum ({y} {r}, {c}, {lu}, {st}) has {a:,.6g} ha"
+                       for b, a, y, r, c, lu, st in zip(over["burned_ha"], available[over.index], over["year"],
+                                                         over["region"], over["climate_zone"], over["land_use"],
+                                                         over["soil_status"])], index=over.index, dtype=object)
+    _Checker(log, fires.attrs.get("file", ""), fires.attrs.get("sheet", "")).rows(
+        "error", "fire", "the fire burns more hectares than its stratum holds", over, "burned_ha", found,
+        "at most the stratum's area_ha in the activity data (same year, region, climate zone, land use and soil "
+        "status)", cut=False)
 
 
 def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
@@ -533,6 +563,19 @@ def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
     outside = frame[(lo.notna() & (lo > frame["value"])) | (hi.notna() & (hi < frame["value"]))]
     check.rows("error", "override", "value lies outside its own interval", outside, "value", outside["value"],
                "ci_low <= value <= ci_high")
+    # A bounded quantity (a fraction) has its interval inside the same bounds: the Monte Carlo draws from it,
+    # and an interval reaching past 0 or 1 would otherwise be cut to a different distribution.
+    bounded = known[known["quantity"].map(lambda q: QUANTITIES[q][2] is not None).astype(bool)]
+    for end, values in (("ci_low", lo), ("ci_high", hi)):
+        rows = bounded[values[bounded.index].notna()]
+        low = rows["quantity"].map(lambda q: bounds[q][0]).astype(float)
+        high = rows["quantity"].map(lambda q: bounds[q][1]).astype(float)
+        rows = rows[(values[rows.index] < low) | (values[rows.index] > high)]
+        for idx, row in rows.head(MAX_LISTED).iterrows():
+            b_lo, b_hi = bounds[row["quantity"]]
+            log.add("error", "override", f"{end} out of range for {row['quantity']}: the interval must lie within "
+                    f"the range of the value", file=file, sheet=sheet, row=int(row[ROW]), column=end,
+                    found=f"{row[end]:g}", expected=f">= {b_lo:g}" if b_hi == np.inf else f"{b_lo:g} to {b_hi:g}")
     one_sided = frame[lo.isna() != hi.isna()]
     check.rows("error", "override", "give both ci_low and ci_high, or neither", one_sided, "ci_low",
                one_sided["ci_low"])

@@ -35,6 +35,13 @@ def append_settings(folder: Path, text: str) -> Path:
     return settings
 
 
+def small_with_fire(folder: Path, line: str, text: str | None = None) -> Path:
+    settings = small(folder, text=text, extra_inputs={"fires": "fires.csv"})
+    (folder / "fires.csv").write_text("year,region,climate_zone,land_use,soil_status,fire_type,burned_ha\n"
+                                      + line + "\n", encoding="utf-8")
+    return settings
+
+
 def nested_arrays(depth: int) -> bytes:
     return b"x = " + b"[" * depth + b'"x"' + b"]" * depth + b"\n"
 
@@ -117,6 +124,44 @@ CASES = [
     ("one column 991 times", lambda f: small(f, text=csv_text(ROW + ",n" * 991, header=HEADER + ",note" * 991)),
      "activity.csv, column note: column appears more than once; found 'note, note, note, note, note, note, note, "
      "note, note, note and 981 more'; expected each column once"),
+    # --- 10. a fire larger than its stratum
+    ("fire larger than its stratum", lambda f: demo(f, "fires.csv", "1997,Kelavi Lowlands,tropical,forest_land,drained,"
+                                                   "wildfire,120.0", "1997,Kelavi Lowlands,tropical,forest_land,"
+                                                   "drained,wildfire,3894.2"),
+     "fires.csv, row 2, column burned_ha: the fire burns more hectares than its stratum holds; found 'burned_ha "
+     "3,894.2 ha; the stratum (1997 Kelavi Lowlands, tropical, forest_land, drained) has 3,894.1 ha'; expected at "
+     "most the stratum's area_ha in the activity data (same year, region, climate zone, land use and soil status)"),
+    ("fire larger than a boreal stratum", lambda f: demo(f, "fires.csv", "2006,Skarrowdale,boreal,forest_land,"
+                                                            "drained,wildfire,35.0", "2006,Skarrowdale,boreal,"
+                                                            "forest_land,drained,wildfire,7000"),
+     "fires.csv, row 3, column burned_ha: the fire burns more hectares than its stratum holds; found 'burned_ha "
+     "7,000 ha; the stratum (2006 Skarrowdale, boreal, forest_land, drained) has 6,100 ha'"),
+    ("fire on a stratum of 0 ha", lambda f: small_with_fire(f, "2020,Testvale,temperate,cropland,drained,wildfire,0.5",
+                                                           text=csv_text(ROW.replace("1.5", "0"))),
+     "fires.csv, row 2, column burned_ha: the fire burns more hectares than its stratum holds; found 'burned_ha 0.5 "
+     "ha; the stratum (2020 Testvale, temperate, cropland, drained) has 0 ha'"),
+    ("fire 1.6 ha on 1.5 ha", lambda f: small_with_fire(f, "2020,Testvale,temperate,cropland,drained,prescribed,1.6"),
+     "found 'burned_ha 1.6 ha; the stratum (2020 Testvale, temperate, cropland, drained) has 1.5 ha'"),
+    # --- 11. override intervals: within the range of a fraction, and around their value
+    ("fraction interval below 0", lambda f: demo_append(
+        f, "overrides.csv", "ditch-x,frac_ditch,temperate,grassland,drained,,,,0.05,fraction,-0.02,0.12,Tier 2,"
+                            "Invented note for a test,,,,"),
+     "overrides.csv, row 3, column ci_low: ci_low out of range for frac_ditch: the interval must lie within the "
+     "range of the value; found '-0.02'; expected 0 to 1"),
+    ("fraction interval above 1", lambda f: demo_append(
+        f, "overrides.csv", "doc-x,frac_doc_co2,temperate,grassland,drained,,,,0.9,fraction,0.8,1.2,Tier 2,"
+                            "Invented note for a test,,,,"),
+     "overrides.csv, row 3, column ci_high: ci_high out of range for frac_doc_co2: the interval must lie within the "
+     "range of the value; found '1.2'; expected 0 to 1"),
+    ("interval not containing its value", lambda f: demo_append(
+        f, "overrides.csv", "co2-x,ef_co2_c_onsite,boreal,cropland,drained,,,,5,t CO2-C ha-1 yr-1,6,8,Tier 2,"
+                            "Invented note for a test,,,,"),
+     "overrides.csv, row 3, column value: value lies outside its own interval; found '5.0'; expected ci_low <= value "
+     "<= ci_high"),
+    ("reversed fraction interval", lambda f: demo_append(
+        f, "overrides.csv", "ditch-y,frac_ditch,temperate,grassland,drained,,,,0.05,fraction,0.08,0.02,Tier 2,"
+                            "Invented note for a test,,,,"),
+     "overrides.csv, row 3, column value: value lies outside its own interval; found '0.05'"),
     ("settings: tables nested 20 deep", lambda f: append_settings(f, nested_tables(20)),
      "inventory.toml: arrays or tables nested more than 8 levels deep (at timeseries.fill_by_region.l0.l1.l2.l3.l4"),
 ]
@@ -405,6 +450,19 @@ def test_binary_part_holding_doctype_bytes_is_read(tmp_path, capsys):
     png = b"\x89PNG\r\n\x1a\n" + DOCTYPE + b"\x00" * 64
     settings = small(tmp_path / "inputs", data=with_part(workbook(), "xl/media/image1.png", png),
                      name="activity.xlsx")
+    code = main(["check", str(settings)])
+    out, err = capsys.readouterr()
+    assert code == 0, out + err
+
+
+def test_fire_burning_its_whole_stratum_is_accepted(tmp_path, capsys):
+    # Remaining and converted land of the stratum together: 1.5 ha remaining + 0.5 ha converted hold a 2 ha fire.
+    settings = small_with_fire(tmp_path / "inputs", "2020,Testvale,temperate,cropland,drained,wildfire,2.0")
+    activity = tmp_path / "inputs" / "activity.csv"
+    activity.write_text("year,region,climate_zone,land_use,soil_status,nutrient_status,drainage_depth,subtype,area_ha,"
+                        "remaining_or_converted,previous_land_use\n"
+                        "2020,Testvale,temperate,cropland,drained,,,,1.5,remaining,\n"
+                        "2020,Testvale,temperate,cropland,drained,,,,0.5,converted,grassland\n", encoding="utf-8")
     code = main(["check", str(settings)])
     out, err = capsys.readouterr()
     assert code == 0, out + err
