@@ -466,3 +466,146 @@ def test_fire_burning_its_whole_stratum_is_accepted(tmp_path, capsys):
     code = main(["check", str(settings)])
     out, err = capsys.readouterr()
     assert code == 0, out + err
+
+
+# ---------------------------------------------------------------- 3. Parquet parcel files
+
+def parcels(**changes):
+    """Two parcels of one stratum as a pyarrow table; ``changes`` replace columns (arrays or lists)."""
+    import pyarrow as pa
+
+    base = {"parcel_id": ["A", "B"], "year": [2020, 2020], "region": ["Testvale"] * 2,
+            "climate_zone": ["temperate"] * 2, "land_use": ["cropland"] * 2, "soil_status": ["drained"] * 2,
+            "nutrient_status": [""] * 2, "drainage_depth": [""] * 2, "subtype": [""] * 2, "area_ha": [1.0, 0.5]}
+    base.update(changes)
+    return pa.table(base)
+
+
+def many_parcels(n: int, **columns):
+    base = {k: v[:1] * n for k, v in parcels().to_pydict().items()}
+    base.update(columns)
+    return parcels(**base)
+
+
+def empty_parcels():
+    import pyarrow as pa
+
+    return pa.table({name: pa.array([], type=column.type) for name, column in zip(parcels().column_names,
+                                                                                   parcels().columns)})
+
+
+def damaged_page(path: Path) -> None:
+    """A file whose area_ha column has a damaged page header (its footer is intact, so the schema reads)."""
+    import numpy as np
+    import pyarrow.parquet as pq
+
+    n = 5000
+    table = many_parcels(n, area_ha=list(np.random.default_rng(1).random(n)))
+    pq.write_table(table, path, compression="snappy")
+    chunk = pq.read_metadata(path).row_group(0).column(table.column_names.index("area_ha"))
+    data = bytearray(path.read_bytes())
+    start = chunk.data_page_offset + 40
+    data[start:start + 200] = bytes(range(200))
+    path.write_bytes(bytes(data))
+
+
+def write_table(table):
+    def build(path: Path) -> None:
+        import pyarrow.parquet as pq
+
+        pq.write_table(table() if callable(table) else table, path)
+    return build
+
+
+def pa_array(values, kind: str):
+    import pyarrow as pa
+
+    types = {"int64": pa.int64(), "binary": pa.binary(), "decimal": pa.decimal128(38, 0),
+             "map": pa.map_(pa.string(), pa.string())}
+    return pa.array(values, type=types[kind])
+
+
+PARQUET_CASES = [
+    ("no rows", write_table(empty_parcels),
+     "parcels.parquet, column area_ha: the parcel file has no rows; expected one row per parcel and year"),
+    ("damaged page", damaged_page,
+     "parcels.parquet, column area_ha: not a readable Parquet file: the data of this column cannot be read (a "
+     "damaged page: Couldn't deserialize thrift"),
+    ("parcel of 1e15 ha", lambda p: write_table(parcels(area_ha=[1e15, 1.0]))(p),
+     "parcels.parquet, column area_ha: area_ha of a parcel is above 1e9 ha (2 parcels; strata 2020 Testvale); "
+     "expected at most 1,000,000,000 ha"),
+    ("area as int64 2**62", lambda p: write_table(parcels(area_ha=pa_array([2 ** 62, 1], "int64")))(p),
+     "parcels.parquet, column area_ha: area_ha of a parcel is above 1e9 ha"),
+    ("area as decimal 1e30", lambda p: write_table(parcels(area_ha=pa_array([10 ** 30, 1], "decimal")))(p),
+     "parcels.parquet, column area_ha: area_ha of a parcel is above 1e9 ha"),
+    ("10,000 parcels of 1e9 ha in one stratum", lambda p: write_table(many_parcels(10_000, area_ha=[1e9] * 10_000))(p),
+     "parcels.parquet, column area_ha: the parcels of a stratum add up to more than its exact sum holds (10000 "
+     "parcels; strata 2020 Testvale); expected at most 9.0e+12 ha per stratum and year"),
+    ("area x uncertainty beyond the integer sum",
+     lambda p: write_table(parcels(area_ha=[1e8, 1e8], area_uncertainty_pct=[500.0, 400.0]))(p),
+     "parcels.parquet, column area_uncertainty_pct: area_ha x area_uncertainty_pct of a stratum is beyond the "
+     "exact integer sum of the area-weighted mean (2 parcels; strata 2020 Testvale); expected area_ha x "
+     "area_uncertainty_pct at most 9.0e+09 per stratum and year"),
+    ("struct region", lambda p: write_table(parcels(region=[{"name": "Testvale"}, {"name": "Testvale"}]))(p),
+     "parcels.parquet, column region: the column holds nested values (a struct, list or map in each cell); its "
+     "Parquet type is struct<name: string>; expected text (string), whole or decimal numbers, or all blank: one "
+     "value per cell"),
+    ("list of areas", lambda p: write_table(parcels(area_ha=[[1.0], [0.5, 0.5]]))(p),
+     "parcels.parquet, column area_ha: the column holds nested values (a struct, list or map in each cell); its "
+     "Parquet type is list<element: double>"),
+    ("map subtype", lambda p: write_table(parcels(subtype=pa_array([[("a", "b")], []], "map")))(p),
+     "parcels.parquet, column subtype: the column holds nested values (a struct, list or map in each cell)"),
+    ("binary region", lambda p: write_table(parcels(region=pa_array([b"Test\xffvale", b"Testvale"], "binary")))(p),
+     "parcels.parquet, column region: the column's type cannot be read as region; its Parquet type is binary"),
+    ("fractional year", lambda p: write_table(parcels(year=[2020.5, 2020.5]))(p),
+     "parcels.parquet, column year: year is not a whole year (2 parcels; strata 2020.5 Testvale); found '2020.5'; "
+     "expected a whole year such as 2020"),
+    ("fractional year as text", lambda p: write_table(parcels(year=["2020", "2020.25"]))(p),
+     "parcels.parquet, column year: year is not a whole year (1 parcels; strata 2020.25 Testvale); found '2020.25'"),
+    ("year 1e20", lambda p: write_table(parcels(year=[1e20, 1e20]))(p),
+     "parcels.parquet, column year: year outside 1900 to 2200 (2 parcels; strata 1e+20 Testvale); found '1e+20'; "
+     "expected a whole year from 1900 to 2200"),
+]
+
+
+@pytest.mark.parametrize("engine", ["duckdb", "dask"])
+@pytest.mark.parametrize("case, build, expected", PARQUET_CASES, ids=[c[0] for c in PARQUET_CASES])
+def test_hostile_parcel_file(case, build, expected, engine, tmp_path):
+    pytest.importorskip("duckdb")
+    dask = pytest.importorskip("dask")
+    pytest.importorskip("dask.dataframe")
+    from compiler.parcels import aggregate_parcels
+
+    path = tmp_path / "parcels.parquet"
+    build(path)
+    with dask.config.set(scheduler="synchronous"), pytest.raises(InputError) as err:
+        aggregate_parcels(path, engine=engine)
+    assert expected in str(err.value), str(err.value)
+
+
+def parquet_inventory(build):
+    def make(folder: Path) -> Path:
+        settings = small(folder)
+        (folder / "activity.csv").unlink()
+        build(folder / "parcels.parquet")
+        settings.write_text(settings.read_text().replace('"activity.csv"', '"parcels.parquet"'), encoding="utf-8")
+        return settings
+    return make
+
+
+@pytest.mark.parametrize("case, build, expected", [c for c in PARQUET_CASES if c[0] in (
+    "no rows", "damaged page", "struct region", "10,000 parcels of 1e9 ha in one stratum")],
+    ids=lambda c: c if isinstance(c, str) else "")
+def test_hostile_parcel_file_through_the_command(case, build, expected, tmp_path, capsys, previous_output):
+    pytest.importorskip("duckdb")
+    check_refused(parquet_inventory(build), expected, tmp_path, capsys, previous_output)
+
+
+def test_parcel_file_of_more_than_1000_columns(tmp_path):
+    pytest.importorskip("duckdb")
+    from compiler.parcels import aggregate_parcels
+
+    path = tmp_path / "parcels.parquet"
+    write_table(parcels(**{f"extra{i}": [0, 0] for i in range(992)}))(path)
+    with pytest.raises(InputError, match="parcels.parquet: the file has 1,002 columns, above the limit of 1,000"):
+        aggregate_parcels(path)
