@@ -34,22 +34,18 @@ from .factors import QUANTITIES, override_weight, unit_kind_ok, check_override_c
 from .readers import MAX_LISTED, ROW, printable, read_table
 from .schema import LAND_KEYS, STRATUM_KEYS
 from .settings import Settings
+from .textrules import (FORMAT_OR_NONCHARACTER, LINE_CONTROL, MAX_NAME_CHARS, MAX_NOTE_CHARS,  # noqa: F401
+                        MULTILINE_CONTROL, NONCHARACTER, SHOWN_CHARS, lookalike_letters, non_ascii_characters,
+                        odd_characters, shorten)
 from .vocabulary import KEY_COLUMNS, TERMS, describe_accepted, normalise_column, normalise_text
 
 MAX_AREA_HA = 1e9
 MAX_MAGNITUDE = 1e9
-MAX_TEXT_CHARS = 200
-MAX_NOTE_CHARS = 2000
+MAX_TEXT_CHARS = MAX_NAME_CHARS
 MISSING_MARKERS = ("nan", "na", "n/a", "null", "none", "-", "--", "#n/a", "missing")
-SHOWN_CHARS = 60  # a longer found value is cut in messages
 YEAR_RANGE = (1900, 2200)
 AREA_COLUMNS = ("area_ha", "burned_ha")
 AREA_BOUND_NOTE = " ha (the world's peatlands cover about 4e8 ha)"
-# C0 and C1 controls, DEL, bidirectional overrides and isolates, line and paragraph separators;
-# names also refuse tab and line breaks.
-_CONTROLS = "\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069"
-MULTILINE_CONTROL = f"[{_CONTROLS}]"
-LINE_CONTROL = f"[{_CONTROLS}\t\n\r]"
 # Text that a spreadsheet program evaluates when it opens a CSV file: refused in every text cell (the
 # CSV files we write carry names, ids, citations and notes as given, so they never start a formula).
 FORMULA_START = r"[=+\-@]"
@@ -175,12 +171,13 @@ class _Checker:
         self.log, self.file, self.sheet = log, file, sheet
 
     def rows(self, severity: str, check: str, message: str, rows: pd.DataFrame, column: str,
-             found: pd.Series | None = None, expected: str = "") -> None:
+             found: pd.Series | None = None, expected: str = "", cut: bool = True) -> None:
         if rows.empty:
             return
         shown = rows.head(MAX_LISTED)
         for idx, r in shown.iterrows():
-            value = "" if found is None else shorten(str(found.loc[idx]))
+            value = "" if found is None else str(found.loc[idx])
+            value = shorten(value) if cut else value
             self.log.add(severity, check, message, file=self.file, sheet=self.sheet, row=int(r[ROW]),
                          column=column, found=value, expected=expected)
         if len(rows) > MAX_LISTED:
@@ -192,9 +189,42 @@ class _Checker:
                      found=found, expected=expected)
 
 
-def shorten(text: str, limit: int = SHOWN_CHARS) -> str:
-    """A found value as shown in a message: long values cut, with their length."""
-    return text if len(text) <= limit else f"{text[:limit]}... ({len(text):,} characters)"
+def _check_characters(raw: pd.DataFrame, stripped: pd.Series, unflagged: pd.Series, col: Column,
+                      check: _Checker) -> np.ndarray:
+    """Noncharacters (any text), format characters and look-alike letters (names): rows refused.
+
+    Every character concerned is outside ASCII, so only the non-ASCII cells are searched, and the
+    look-alike letters only in their distinct values.
+    """
+    bad = np.zeros(len(raw), dtype=bool)
+    candidates = stripped[unflagged & ~stripped.str.isascii()]
+    if candidates.empty:
+        return bad
+    invisible = candidates.str.contains(NONCHARACTER if col.multiline else FORMAT_OR_NONCHARACTER, regex=True)
+    rows = candidates[invisible]
+    if not rows.empty:
+        found = rows.map(lambda v: f"{shorten(v)} ({odd_characters(v)})")
+        check.rows("error", "text", f"{col.name} holds " + ("a noncharacter" if col.multiline else
+                                                          "an invisible character or a noncharacter"),
+                   raw.loc[rows.index], col.name, found,
+                   "text without noncharacters (U+FFFE, U+FFFF, U+FDD0 to U+FDEF)" if col.multiline else
+                   "visible text: no format characters (zero-width spaces and joiners, soft hyphens, byte-order "
+                   "marks) and no noncharacters (U+FFFE, U+FFFF, U+FDD0 to U+FDEF); retype the name",
+                   cut=False)
+        bad[raw.index.get_indexer(rows.index)] = True
+    if col.multiline:
+        return bad
+    rest = candidates[~invisible]
+    letters = {v: lookalike_letters(v) for v in pd.unique(rest)}
+    letters = {v: found for v, found in letters.items() if found}
+    if letters:
+        rows = rest[rest.isin(list(letters))]
+        found = rows.map(lambda v: f"{shorten(v)} ({odd_characters(v, letters[v])})")
+        check.rows("error", "text", f"{col.name} mixes alphabets within a word (letters that look alike but are "
+                   "others)", raw.loc[rows.index], col.name, found,
+                   "each word in one alphabet: retype the letters named", cut=False)
+        bad[raw.index.get_indexer(rows.index)] = True
+    return bad
 
 
 def _parse_numbers(text: pd.Series, decimal_comma: bool) -> pd.Series:
@@ -224,11 +254,19 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
     given = [c for c in raw.columns if c != ROW]
     header_map = {c: _header(c) for c in given}
     internal = [header_map[c] for c in given]  # one entry per column, even when two headers are spelt alike
-    duplicated = sorted({h for h in internal if h and internal.count(h) > 1})
-    for h in duplicated:
-        spelt = [str(c) for c in given if header_map[c] == h]
-        check.one("error", "columns", "column appears more than once", column=h, found=", ".join(spelt),
+    spellings: dict[str, list[str]] = {}
+    for c, h in zip(given, internal):  # one pass: linear in the number of columns
+        spellings.setdefault(h, []).append(str(c))
+    duplicated = sorted(h for h, spelt in spellings.items() if h and len(spelt) > 1)
+    for h in duplicated[:MAX_LISTED]:
+        spelt = spellings[h]
+        check.one("error", "columns", "column appears more than once", column=h,
+                  found=shorten(", ".join(spelt[:MAX_LISTED]) + (f" and {len(spelt) - MAX_LISTED:,} more"
+                                                                  if len(spelt) > MAX_LISTED else ""), 400),
                   expected="each column once")
+    if len(duplicated) > MAX_LISTED:
+        check.one("error", "columns", f"{len(duplicated) - MAX_LISTED:,} more columns appear more than once "
+                  "(not listed)", expected="each column once")
     if duplicated:
         return pd.DataFrame()
     raw = raw.rename(columns=header_map)
@@ -242,7 +280,8 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
     extra = [c for c in raw.columns if c not in names and c != ROW]
     if extra:
         check.one("warning", "columns", "column not used by the compiler (kept in your file, ignored here)",
-                  column=", ".join(shorten(printable(c), 40) for c in extra))
+                  column=", ".join(shorten(printable(c), 40) for c in extra[:MAX_LISTED])
+                  + (f" and {len(extra) - MAX_LISTED:,} more" if len(extra) > MAX_LISTED else ""))
     out = pd.DataFrame({ROW: raw[ROW].to_numpy()}, index=raw.index)
     bad_rows = np.zeros(len(raw), dtype=bool)
     for col in spec:
@@ -261,7 +300,11 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
                 for value, near in unknown.items():
                     rows = raw[(values == value) & bad]
                     expected = describe_accepted(col.term) + (f" (closest: {near})" if near else "")
-                    check.rows("error", "vocabulary", f"unknown {col.name}", rows, col.name, text, expected)
+                    # Terms are ASCII: a look-alike or invisible character is named by its code point.
+                    odd = non_ascii_characters(value.strip())
+                    found = text if not odd else pd.Series(f"{shorten(value.strip())} ({odd})", index=rows.index)
+                    check.rows("error", "vocabulary", f"unknown {col.name}", rows, col.name, found, expected,
+                               cut=not odd)
                 bad_rows |= bad.to_numpy()
             if col.required and "" not in TERMS[col.term]:
                 empty = raw[values == ""]
@@ -289,6 +332,7 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, set
                        "as a formula when it opens a CSV file", raw[formula], col.name, text,
                        "text that starts with a letter, a digit or a bracket (reword, or drop the first character)")
             bad_rows |= formula.to_numpy()
+            bad_rows |= _check_characters(raw, stripped, ~control, col, check)
             out[col.name] = stripped.where(~blank, col.default)
         else:
             numbers = _parse_numbers(stripped, decimal_comma)
@@ -450,6 +494,7 @@ def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
         return pd.DataFrame()
     frame, sheet = _load(settings.fires, "", FIRE_COLUMNS, log, settings)
     if not frame.empty:
+        frame.attrs["file"], frame.attrs["sheet"] = str(settings.fires), sheet
         frame["year"] = frame["year"].astype("Int64")
         keys = ["year", "region", "climate_zone", "land_use", "soil_status", "fire_type", "remaining_or_converted"]
         good = frame[~frame["_bad"]]
@@ -458,6 +503,35 @@ def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
             "error", "duplicate", "the same fire (year, region, stratum, fire type) appears in more than one row", dup,
             "year", dup["region"].astype(str), "one row per fire stratum and year (add the burnt areas together)")
     return frame
+
+
+FIRE_STRATUM = ["year", "region", "climate_zone", "land_use", "soil_status"]
+
+
+def check_fires_within_strata(fires: pd.DataFrame, activity: pd.DataFrame, log: FindingLog) -> None:
+    """A fire burns at most the area of its stratum: burned_ha <= the activity area of its year, region,
+    climate zone, land use and soil status (after gap filling; remaining and converted land together, all
+    nutrient statuses, drainage depths and subtypes). Each fire row above it is an error naming both figures.
+    A fire whose stratum has no activity row is not checked here."""
+    if fires is None or fires.empty or activity is None or activity.empty:
+        return
+    good = fires[~fires["_bad"]]
+    if good.empty:
+        return
+    keys = good[FIRE_STRATUM].astype({"year": "int64"})
+    area = activity.assign(year=activity["year"].astype("int64")).groupby(FIRE_STRATUM, sort=False)["area_ha"].sum()
+    available = keys.merge(area.rename("stratum_ha").reset_index(), on=FIRE_STRATUM, how="left")["stratum_ha"]
+    available = pd.Series(available.to_numpy(), index=good.index)
+    # A fire in a stratum without activity rows is left alone (the inventory may report fires alone).
+    over = good[available.notna() & (good["burned_ha"] > available)]
+    found = pd.Series([f"burned_ha {b:,.6g} ha; the stratum ({y} {r}, {c}, {lu}, {st}) has {a:,.6g} ha"
+                       for b, a, y, r, c, lu, st in zip(over["burned_ha"], available[over.index], over["year"],
+                                                         over["region"], over["climate_zone"], over["land_use"],
+                                                         over["soil_status"])], index=over.index, dtype=object)
+    _Checker(log, fires.attrs.get("file", ""), fires.attrs.get("sheet", "")).rows(
+        "error", "fire", "the fire burns more hectares than its stratum holds", over, "burned_ha", found,
+        "at most the stratum's area_ha in the activity data (same year, region, climate zone, land use and soil "
+        "status)", cut=False)
 
 
 def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
@@ -499,6 +573,19 @@ def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
     outside = frame[(lo.notna() & (lo > frame["value"])) | (hi.notna() & (hi < frame["value"]))]
     check.rows("error", "override", "value lies outside its own interval", outside, "value", outside["value"],
                "ci_low <= value <= ci_high")
+    # A bounded quantity (a fraction) has its interval inside the same bounds: the Monte Carlo draws from it,
+    # and an interval reaching past 0 or 1 would otherwise be cut to a different distribution.
+    bounded = known[known["quantity"].map(lambda q: QUANTITIES[q][2] is not None).astype(bool)]
+    for end, values in (("ci_low", lo), ("ci_high", hi)):
+        rows = bounded[values[bounded.index].notna()]
+        low = rows["quantity"].map(lambda q: bounds[q][0]).astype(float)
+        high = rows["quantity"].map(lambda q: bounds[q][1]).astype(float)
+        rows = rows[(values[rows.index] < low) | (values[rows.index] > high)]
+        for idx, row in rows.head(MAX_LISTED).iterrows():
+            b_lo, b_hi = bounds[row["quantity"]]
+            log.add("error", "override", f"{end} out of range for {row['quantity']}: the interval must lie within "
+                    f"the range of the value", file=file, sheet=sheet, row=int(row[ROW]), column=end,
+                    found=f"{row[end]:g}", expected=f">= {b_lo:g}" if b_hi == np.inf else f"{b_lo:g} to {b_hi:g}")
     one_sided = frame[lo.isna() != hi.isna()]
     check.rows("error", "override", "give both ci_low and ci_high, or neither", one_sided, "ci_low",
                one_sided["ci_low"])

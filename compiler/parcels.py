@@ -33,7 +33,15 @@ order of the rows (two runs give identical tables, and DuckDB and Dask give the 
   correlation of one): conservative where they are independent. A stratum of zero area keeps the
   smallest value given.
 
-Limits of the integer sums: up to about 9e9 ha per stratum and year (int64 of 1e-9 ha x value).
+Limits, each refused with the file and column (never an overflow or a crash of the engine): a parcel's
+area at most 1e9 ha; the integer sums of a stratum and year below 9e18 (int64), that is at most 9e12 ha
+of area and 9e9 of area x value (ha x fraction, ha x %: e.g. 9e7 ha at 100 %). A floating-point twin of
+each sum tests the range, so that neither engine's integer sum overflows unseen.
+
+What else is refused: a file without rows; a column read (the activity columns) whose Parquet type is
+nested (struct, list, map) or neither text nor a number (binary, timestamps); a page that cannot be read
+(the column is named: each column is read alone with pyarrow to find it); a year that is fractional or
+outside 1900 to 2200; more than 1,000 columns.
 """
 
 from __future__ import annotations
@@ -44,6 +52,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import Finding, FindingLog, InputError
+from .readers import printable
 from .vocabulary import TERMS, describe_accepted, normalise_column, normalise_text
 
 ENGINES = ("duckdb", "dask")
@@ -63,10 +72,19 @@ MEANS = {"ditch_fraction": (0.0, 1.0, "a fraction from 0 to 1"),
 MAX_SHOWN = 10  # strata named per problem before "and N more"
 # Per-group aggregates the engines compute: name -> how they combine (sum, min or max).
 AGGREGATES = {"parcel_count": "sum", "area_blank": "sum", "area_not_number": "sum", "area_negative": "sum",
-              "area_units": "sum",
+              "area_too_large": "sum", "area_units": "sum", "area_float": "sum",
               **{f"{c}_{part}": how for c in MEANS for part, how in
                  (("given", "sum"), ("bad", "sum"), ("n", "sum"), ("units", "sum"), ("weighted", "sum"),
-                  ("min", "min"), ("max", "max"))}}
+                  ("min", "min"), ("max", "max"), ("product_float", "sum"))}}
+# Sums kept as floating point: they only test the integer sums against their range (below), never give a number.
+FLOAT_SUMS = ("area_float", *(f"{c}_product_float" for c in MEANS))
+YEAR_RANGE = (1900, 2200)  # as the activity reader's, where the settings give no range
+MAX_PARCEL_HA = 1e9  # a parcel's area: the readers' limit of an area (the world's peatlands cover about 4e8 ha)
+# The integer sums are int64: a stratum's area in 1e-6 ha and its area x value in 1e-9 ha x value must stay
+# below 2**63 (about 9.2e18). Beyond INTEGER_SUM_LIMIT the stratum is refused, and the engines' sums are cut
+# there, so that neither overflows (DuckDB would stop with a conversion error, numpy would wrap around).
+INTEGER_SUM_LIMIT = 9e18
+ACCEPTED_TYPES = "text (string), whole or decimal numbers, or all blank"
 
 
 def aggregate_parcels(path: str | Path, engine: str = "duckdb", log: FindingLog | None = None, *,
@@ -113,8 +131,19 @@ def aggregate_parcels(path: str | Path, engine: str = "duckdb", log: FindingLog 
     if columns is None:
         table = _empty()
     else:
-        grouped = (_group_duckdb(path, columns, threads, memory_limit) if engine == "duckdb"
-                   else _group_dask(path, columns))
+        try:
+            grouped = (_group_duckdb(path, columns, threads, memory_limit) if engine == "duckdb"
+                       else _group_dask(path, columns))
+        except (MemoryError, KeyboardInterrupt):
+            raise
+        except Exception as exc:  # DuckDB and pyarrow raise many types for a damaged page or column chunk
+            _unreadable(path, columns, exc, log)
+            grouped = None
+        if grouped is None:
+            table = _empty()
+            if own_log:
+                log.raise_if_errors()
+            return table
         table = _finish(grouped, file, log)
         log.add("info", "parcels", f"{int(table['parcel_count'].sum())} parcel-years aggregated into {len(table)} "
                 f"strata with {engine}; row numbers in findings count the strata of that table (header = row 1), "
@@ -204,16 +233,24 @@ def _columns(path: Path, log: FindingLog) -> dict | None:
         log.add("error", "read", f"not a readable Parquet file ({type(exc).__name__})", file=str(path),
                 expected="a Parquet file with one row per parcel and year")
         return None
+    from .readers import MAX_COLUMNS
+
+    if len(schema) > MAX_COLUMNS:
+        log.add("error", "columns", f"the file has {len(schema):,} columns, above the limit of {MAX_COLUMNS:,}",
+                file=str(path), expected=f"at most {MAX_COLUMNS:,} columns (a parcel file needs about 15)")
+        return None
+    import pyarrow as pa
+
     found: dict[str, tuple[str, str]] = {}
+    types: dict[str, object] = {}
     duplicated = []
     for field in schema:
         internal = _header(field.name)
         if internal in found:
             duplicated.append(internal)
-        import pyarrow as pa
-
         numeric = pa.types.is_integer(field.type) or pa.types.is_floating(field.type) or pa.types.is_decimal(field.type)
         found[internal] = (field.name, "number" if numeric else "text")
+        types[internal] = field.type
     for name in sorted(set(duplicated)):
         log.add("error", "columns", "column appears more than once", file=str(path), column=name, found=name)
     missing = [c for c in REQUIRED if c not in found]
@@ -222,11 +259,61 @@ def _columns(path: Path, log: FindingLog) -> dict | None:
                 found=", ".join(found), expected="columns " + ", ".join(REQUIRED))
     if missing or duplicated:
         return None
+    unusable = False
+    for name in REQUIRED + OPTIONAL:  # the columns read: one plain value per cell
+        if name in types and not _plain_type(types[name]):
+            nested = (pa.types.is_nested(types[name]) or pa.types.is_dictionary(types[name]))
+            log.add("error", "parcels", ("the column holds nested values (a struct, list or map in each cell)"
+                                         if nested else f"the column's type cannot be read as {name}")
+                    + f"; its Parquet type is {printable(str(types[name]))[:120]}", file=str(path),
+                    column=printable(found[name][0]), expected=f"{ACCEPTED_TYPES}: one value per cell")
+            unusable = True
+    try:
+        rows = pq.read_metadata(path).num_rows
+    except Exception as exc:  # a footer that read_schema accepted but whose row groups are damaged
+        log.add("error", "read", f"not a readable Parquet file ({type(exc).__name__})", file=str(path),
+                expected="a Parquet file with one row per parcel and year")
+        return None
+    if rows == 0:
+        log.add("error", "parcels", "the parcel file has no rows", file=str(path), column=found["area_ha"][0],
+                expected="one row per parcel and year")
+        return None
+    if unusable:
+        return None
     extra = [f for f in found if f not in REQUIRED + OPTIONAL]
     if extra:
         log.add("warning", "columns", "column not used by the compiler (kept in your file, ignored here)",
                 file=str(path), column=", ".join(extra))
     return {c: found[c] for c in REQUIRED + OPTIONAL if c in found}
+
+
+def _plain_type(kind) -> bool:
+    """Text, numbers, or the null type of an all-blank column (also as a dictionary of text or numbers)."""
+    import pyarrow as pa
+
+    if pa.types.is_dictionary(kind):
+        kind = kind.value_type
+    return (pa.types.is_string(kind) or pa.types.is_large_string(kind) or pa.types.is_integer(kind)
+            or pa.types.is_floating(kind) or pa.types.is_decimal(kind) or pa.types.is_null(kind)
+            or (hasattr(pa.types, "is_string_view") and pa.types.is_string_view(kind)))
+
+
+def _unreadable(path: Path, columns: dict, exc: Exception, log: FindingLog) -> None:
+    """An engine could not read the data: name the first column whose pages do not read (pyarrow, one column
+    at a time), else the file."""
+    import pyarrow.parquet as pq
+
+    reason = printable(str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__)[:160]
+    for name, _kind in columns.values():
+        try:
+            pq.read_table(path, columns=[name])
+        except Exception as column_exc:  # pyarrow raises OSError, ArrowInvalid, ... for a damaged page
+            log.add("error", "read", "not a readable Parquet file: the data of this column cannot be read (a "
+                    f"damaged page: {printable(str(column_exc).strip().splitlines()[0])[:160]})", file=str(path),
+                    column=printable(name), expected="the file written again by the program that made it")
+            return
+    log.add("error", "read", f"not a readable Parquet file ({type(exc).__name__}: {reason})", file=str(path),
+            expected="the file written again by the program that made it")
 
 
 # --- the engines --------------------------------------------------------------------------------
@@ -266,26 +353,36 @@ def _group_duckdb(path: Path, columns: dict, threads: int | None, memory_limit: 
         given, value = _sql_number(columns.get(c))
         parts += [f"{given} AS {c}_given", f"{value} AS {c}"]
     # Per parcel: is the area usable, and its integer 1e-6 ha; per mean column: is the value usable.
-    ok_area = "(area_given AND isfinite(area) AND area >= 0)"
+    ok_area = f"(area_given AND isfinite(area) AND area >= 0 AND area <= {MAX_PARCEL_HA:.1f})"
+    cap = f"{INTEGER_SUM_LIMIT:.0f}"
+
+    def capped(expression: str) -> str:  # an integer sum cut at INTEGER_SUM_LIMIT (such strata are refused)
+        return f"CAST(LEAST(SUM({expression}), {cap}) AS BIGINT)"
+
     aggregates = [
         "COUNT(*) AS parcel_count",
         "SUM(CASE WHEN NOT area_given THEN 1 ELSE 0 END) AS area_blank",
         "SUM(CASE WHEN area_given AND (area IS NULL OR NOT isfinite(area)) THEN 1 ELSE 0 END) AS area_not_number",
         "SUM(CASE WHEN area_given AND isfinite(area) AND area < 0 THEN 1 ELSE 0 END) AS area_negative",
-        f"CAST(SUM(CASE WHEN {ok_area} THEN CAST(floor(area * {AREA_SCALE}.0 + 0.5) AS BIGINT) ELSE 0 END) "
-        "AS BIGINT) AS area_units",
+        f"SUM(CASE WHEN area_given AND isfinite(area) AND area > {MAX_PARCEL_HA:.1f} THEN 1 ELSE 0 END) "
+        "AS area_too_large",
+        capped(f"CASE WHEN {ok_area} THEN CAST(floor(area * {AREA_SCALE}.0 + 0.5) AS BIGINT) ELSE 0 END")
+        + " AS area_units",
+        f"SUM(CASE WHEN {ok_area} THEN area ELSE 0.0 END) AS area_float",
     ]
     for c, (low, high, _) in MEANS.items():
         ok_value = f"({c} IS NOT NULL AND isfinite({c}) AND {c} >= {low} AND {c} <= {high})"
         use = f"({c}_given AND {ok_value} AND {ok_area})"
+        product = f"(area * {c} * {PRODUCT_SCALE}.0)"
         aggregates += [
             f"SUM(CASE WHEN {c}_given THEN 1 ELSE 0 END) AS {c}_given",
             f"SUM(CASE WHEN {c}_given AND NOT {ok_value} THEN 1 ELSE 0 END) AS {c}_bad",
             f"SUM(CASE WHEN {use} THEN 1 ELSE 0 END) AS {c}_n",
-            f"CAST(SUM(CASE WHEN {use} THEN CAST(floor(area * {AREA_SCALE}.0 + 0.5) AS BIGINT) ELSE 0 END) "
-            f"AS BIGINT) AS {c}_units",
-            f"CAST(SUM(CASE WHEN {use} THEN CAST(floor(area * {c} * {PRODUCT_SCALE}.0 + 0.5) AS BIGINT) "
-            f"ELSE 0 END) AS BIGINT) AS {c}_weighted",
+            capped(f"CASE WHEN {use} THEN CAST(floor(area * {AREA_SCALE}.0 + 0.5) AS BIGINT) ELSE 0 END")
+            + f" AS {c}_units",
+            capped(f"CASE WHEN {use} AND {product} < {cap} THEN CAST(floor({product} + 0.5) AS BIGINT) "
+                   f"ELSE 0 END") + f" AS {c}_weighted",
+            f"SUM(CASE WHEN {use} THEN {product} ELSE 0.0 END) AS {c}_product_float",
             f"MIN(CASE WHEN {use} THEN {c} END) AS {c}_min",
             f"MAX(CASE WHEN {use} THEN {c} END) AS {c}_max",
         ]
@@ -333,24 +430,30 @@ def _prepare_partition(frame: pd.DataFrame, columns: dict) -> pd.DataFrame:
     area_given, area = number(columns["area_ha"])
     with np.errstate(invalid="ignore"):
         finite = np.isfinite(area)
-        ok_area = area_given & finite & (area >= 0)
+        too_large = area_given & finite & (area > MAX_PARCEL_HA)
+        ok_area = area_given & finite & (area >= 0) & ~too_large
         units = np.where(ok_area, np.floor(np.where(ok_area, area, 0.0) * float(AREA_SCALE) + 0.5), 0.0)
     out["parcel_count"] = np.ones(len(frame), dtype=np.int64)
     out["area_blank"] = (~area_given).astype(np.int64)
     out["area_not_number"] = (area_given & ~finite).astype(np.int64)
     out["area_negative"] = (area_given & finite & (area < 0)).astype(np.int64)
+    out["area_too_large"] = too_large.astype(np.int64)
     out["area_units"] = units.astype(np.int64)
+    out["area_float"] = np.where(ok_area, area, 0.0)
     for c, (low, high, _) in MEANS.items():
         given, value = number(columns.get(c))
         with np.errstate(invalid="ignore"):
             ok_value = np.isfinite(value) & (value >= low) & (value <= high)
             use = given & ok_value & ok_area
-            product = np.where(use, area, 0.0) * np.where(use, value, 0.0) * float(PRODUCT_SCALE) + 0.5
+            exact = np.where(use, area, 0.0) * np.where(use, value, 0.0) * float(PRODUCT_SCALE)
+            fits = exact < INTEGER_SUM_LIMIT
+            product = np.where(fits, exact, 0.0) + 0.5
         out[f"{c}_given"] = given.astype(np.int64)
         out[f"{c}_bad"] = (given & ~ok_value).astype(np.int64)
         out[f"{c}_n"] = use.astype(np.int64)
         out[f"{c}_units"] = np.where(use, units, 0.0).astype(np.int64)
-        out[f"{c}_weighted"] = np.where(use, np.floor(product), 0.0).astype(np.int64)
+        out[f"{c}_weighted"] = np.where(use & fits, np.floor(product), 0.0).astype(np.int64)
+        out[f"{c}_product_float"] = exact
         out[f"{c}_min"] = np.where(use, value, np.nan)
         out[f"{c}_max"] = np.where(use, value, np.nan)
     return out
@@ -364,7 +467,11 @@ def _group_dask(path: Path, columns: dict) -> pd.DataFrame:
     meta = _prepare_partition(parcels._meta, columns)
     prepared = parcels.map_partitions(_prepare_partition, columns, meta=meta)
     grouped = prepared.groupby(GROUP_COLUMNS, dropna=False, sort=False).agg(AGGREGATES)
-    return grouped.compute().reset_index()
+    table = grouped.compute().reset_index()
+    for c in ("area_units", *(f"{m}_{part}" for m in MEANS for part in ("units", "weighted"))):
+        # As DuckDB's sums, cut at the limit; a sum that wrapped around is caught by its float twin in _finish.
+        table[c] = table[c].clip(upper=int(INTEGER_SUM_LIMIT))
+    return table
 
 
 # --- validation and the final table (the same for both engines) --------------------------------------
@@ -391,7 +498,7 @@ def _finish(grouped: pd.DataFrame, file: str, log: FindingLog) -> pd.DataFrame:
     for c in GROUP_COLUMNS:
         g[c] = g[c].astype(object).where(g[c].notna(), "").astype(str)
     for c, how in AGGREGATES.items():
-        if how == "sum":
+        if how == "sum" and c not in FLOAT_SUMS:
             g[c] = g[c].fillna(0).astype(np.int64)
         else:
             g[c] = g[c].astype(float)
@@ -415,7 +522,11 @@ def _finish(grouped: pd.DataFrame, file: str, log: FindingLog) -> pd.DataFrame:
     for value in sorted(set(g.loc[not_whole, "year"]))[:MAX_SHOWN]:
         error(not_whole & (g["year"] == value), "year", "year is not a whole year", found=value,
               expected="a whole year such as 2020")
-    g["year"] = year.where(~not_whole & (year_text != ""), 0).fillna(0).astype(np.int64)
+    outside = ~not_whole & year.notna() & ((year < YEAR_RANGE[0]) | (year > YEAR_RANGE[1]))
+    for value in sorted(set(g.loc[outside, "year"]))[:MAX_SHOWN]:
+        error(outside & (g["year"] == value), "year", f"year outside {YEAR_RANGE[0]} to {YEAR_RANGE[1]}",
+              found=value, expected=f"a whole year from {YEAR_RANGE[0]} to {YEAR_RANGE[1]}")
+    g["year"] = year.where(~not_whole & ~outside & (year_text != ""), 0).fillna(0).astype(np.int64)
 
     # Region: free text, trimmed as the CSV reader trims it.
     region = g["region"].str.strip()
@@ -440,8 +551,17 @@ def _finish(grouped: pd.DataFrame, file: str, log: FindingLog) -> pd.DataFrame:
     error(g["area_not_number"] > 0, "area_ha", "area_ha is not a finite number",
           expected="a number with '.' as decimal mark")
     error(g["area_negative"] > 0, "area_ha", "area_ha is negative", expected=">= 0")
+    error(g["area_too_large"] > 0, "area_ha", "area_ha of a parcel is above 1e9 ha",
+          expected="at most 1,000,000,000 ha (the world's peatlands cover about 4e8 ha)")
+    # The sums of a stratum are whole numbers of 1e-6 ha (and 1e-9 ha x value) in int64: refused beyond.
+    error(g["area_float"] * AREA_SCALE >= INTEGER_SUM_LIMIT, "area_ha", "the parcels of a stratum add up to more "
+          "than its exact sum holds", expected=f"at most {INTEGER_SUM_LIMIT / AREA_SCALE:.1e} ha per stratum and year "
+          "(the readers refuse a stratum above 1e9 ha)")
     for c, (_, _, expected) in MEANS.items():
         error(g[f"{c}_bad"] > 0, c, f"{c} is not {expected}", expected=expected)
+        error(g[f"{c}_product_float"] >= INTEGER_SUM_LIMIT, c, f"area_ha x {c} of a stratum is beyond the exact "
+              "integer sum of the area-weighted mean",
+              expected=f"area_ha x {c} at most {INTEGER_SUM_LIMIT / PRODUCT_SCALE:.1e} per stratum and year")
 
     # As the CSV reader does: previous_land_use means something only on converted land.
     remaining = (g["remaining_or_converted"] != "converted") & (g["previous_land_use"] != "")

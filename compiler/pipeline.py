@@ -16,7 +16,8 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
-from .activity import load_activity, load_fires, load_overrides, load_review, load_review_log, load_surrogates
+from .activity import (check_fires_within_strata, load_activity, load_fires, load_overrides, load_review,
+                       load_review_log, load_surrogates)
 from .aggregate import Aggregates, aggregate
 from .categories import allocate, category_table
 from .engine import compute
@@ -109,6 +110,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     log.raise_if_errors()
     activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region,
                          surrogates, settings.fill_by_land_use)
+    log.raise_if_errors()
+    check_fires_within_strata(fires, activity, log)
     log.raise_if_errors()
     # One order whatever the order of the input rows, so that every sum below adds in the same order and
     # the outputs do not depend on how the rows were sorted in the file (the index still names the record).

@@ -33,6 +33,7 @@ import pandas as pd
 from .errors import MAX_LISTED, Finding, InputError  # noqa: F401 (MAX_LISTED: the checks import it from here)
 
 ROW = "_row"
+MAX_COLUMNS = 1000  # columns of an input table (the widest input format has 18)
 MIB = 1024 * 1024
 SNIFF_BYTES = 4096
 ZIP_MAGIC = b"PK\x03\x04"
@@ -183,6 +184,24 @@ def _has_dtd(archive: zipfile.ZipFile, info: zipfile.ZipInfo) -> bool:
     return False
 
 
+def _parsed_as_xml(archive: zipfile.ZipFile, info: zipfile.ZipInfo) -> bool:
+    """Whether a part could be read as XML: by its name, or by its first bytes, whatever its name.
+
+    A workbook's relationships can point a reader at a part of any name, so a name ending in .bin or
+    nothing is no guarantee. An XML document starts, after a byte-order mark and white space, with
+    ``<`` (in UTF-8 or UTF-16 either byte order); images and binary parts do not.
+    """
+    if info.filename.lower().endswith(XML_PART_SUFFIXES):
+        return True
+    with archive.open(info) as part:
+        head = part.read(256)
+    for bom in (UTF8_BOM, b"\xff\xfe", b"\xfe\xff"):
+        if head.startswith(bom):
+            head = head[len(bom):]
+            break
+    return head.lstrip(b" \t\r\n\x00").startswith(b"<")
+
+
 def _check_archive(archive: zipfile.ZipFile, fname: str, max_mb: float) -> None:
     infos = archive.infolist()
     unpacked = sum(i.file_size for i in infos)
@@ -192,7 +211,7 @@ def _check_archive(archive: zipfile.ZipFile, fname: str, max_mb: float) -> None:
     if any(i.flag_bits & 0x1 for i in infos):
         raise _error("the workbook's parts are encrypted", fname, expected="an .xlsx workbook saved without a password")
     for info in infos:
-        if info.filename.lower().endswith(XML_PART_SUFFIXES) and _has_dtd(archive, info):
+        if _parsed_as_xml(archive, info) and _has_dtd(archive, info):
             raise _error(f"the workbook part {printable(info.filename)} declares a DOCTYPE or XML entities; "
                          "refused unread (spreadsheet programs never write one; entity expansion can exhaust memory)",
                          fname,
@@ -335,6 +354,10 @@ def _frame_from_rows(rows: list[list[str]], fname: str, sheet: str) -> pd.DataFr
         header.pop()
     if not header:
         raise _error("the header row (row 1) is blank", fname, sheet=sheet, row=1, expected="column names in row 1")
+    if len(header) > MAX_COLUMNS:
+        raise _error(f"the header row has {len(header):,} columns, above the limit of {MAX_COLUMNS:,}", fname,
+                     sheet=sheet, row=1, expected=f"at most {MAX_COLUMNS:,} columns (the input tables use about 15; "
+                                                  "move other data to another file)")
     if ROW in (h.strip().lower() for h in header):
         raise _error(f"the column name {ROW} is reserved", fname, sheet=sheet, row=1, column=ROW,
                      expected="another column name")

@@ -17,6 +17,7 @@ every category, gas and year.
 
 from __future__ import annotations
 
+import io
 from pathlib import Path
 
 import numpy as np
@@ -28,6 +29,37 @@ from .schema import ROW_KEYS
 MATCH_KEYS = ROW_KEYS  # rows of two exports are matched on every key of a result row (compiler.schema)
 PARTS = ["activity_change", "factor_change", "strata_added", "strata_removed", "allocation_change"]
 NEEDED = set(MATCH_KEYS) | {"category_code", "area_ha", "emission_t", "co2eq_t", "notation_key", "factor_id"}
+
+
+class _TooLarge(Exception):
+    """The unpacked stream passed the size limit."""
+
+
+class _Unpacked(io.RawIOBase):
+    """A decompressing stream that counts what it gives and stops past ``limit`` bytes.
+
+    The size limit of a compressed file holds for its unpacked content: a small gzip can unpack to
+    gigabytes, and is refused as soon as the count passes the limit, without unpacking the rest.
+    """
+
+    def __init__(self, stream, limit: float):
+        super().__init__()
+        self.stream, self.limit, self.count = stream, limit, 0
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, buffer) -> int:
+        data = self.stream.read(len(buffer))
+        self.count += len(data)
+        if self.count > self.limit:
+            raise _TooLarge()
+        buffer[:len(data)] = data
+        return len(data)
+
+    def close(self) -> None:
+        self.stream.close()
+        super().close()
 
 
 def load_export(path: str | Path, max_mb: float = 512) -> pd.DataFrame:
@@ -42,11 +74,19 @@ def load_export(path: str | Path, max_mb: float = 512) -> pd.DataFrame:
     import gzip
     import zlib
 
-    if path.stat().st_size > max_mb * 1024 * 1024:
+    limit = max_mb * 1024 * 1024
+    if path.stat().st_size > limit:
         raise InputError([Finding("error", "compare", f"file is above the limit of {max_mb:g} MiB", file=str(path))])
+    with path.open("rb") as handle:
+        packed = handle.read(2) == b"\x1f\x8b" or path.suffix.lower() == ".gz"  # gzip by its name or its bytes
     try:
-        frame = pd.read_csv(path, dtype={k: str for k in MATCH_KEYS if k != "year"}, keep_default_na=False,
-                            na_values={"emission_t": [""], "co2eq_t": [""], "area_ha": [""]})
+        with (_Unpacked(gzip.open(path, "rb"), limit) if packed else path.open("rb")) as source:
+            frame = pd.read_csv(source, compression=None, dtype={k: str for k in MATCH_KEYS if k != "year"},
+                                keep_default_na=False, na_values={"emission_t": [""], "co2eq_t": [""], "area_ha": [""]})
+    except _TooLarge:
+        raise InputError([Finding("error", "compare", f"the file unpacks to more than {max_mb:g} MiB, above the limit "
+                                  "(settings [limits] max_input_mb); reading stopped there", file=str(path),
+                                  expected=f"an emissions.csv of at most {max_mb:g} MiB unpacked")]) from None
     except (ValueError, UnicodeDecodeError, pd.errors.ParserError, gzip.BadGzipFile, EOFError, zlib.error,
             OSError) as exc:
         raise InputError([Finding("error", "compare", f"not a readable emissions.csv ({type(exc).__name__})",

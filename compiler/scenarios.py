@@ -63,7 +63,7 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import tomllib
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -76,7 +76,9 @@ from .activity import load_overrides
 from .engine import compute
 from .errors import Finding, FindingLog, InputError
 from .metrics import co2_equivalent
-from .settings import Settings
+from .readers import check_size, printable
+from .settings import Settings, parse_toml
+from .textrules import MAX_NAME_CHARS, MAX_NOTE_CHARS, shorten, text_problem
 from .units import tonnes_of_gas_per_unit
 from .vocabulary import ALIASES, TERMS, normalise_text
 
@@ -92,6 +94,8 @@ FILTER_TERMS = ("climate_zone", "land_use", "nutrient_status", "drainage_depth",
 AREA_COLUMNS = ["scenario", "year", *STRATUM, "ditch_fraction", "remaining_or_converted", "previous_land_use",
                 "origin", "measure", "initial_ch4", "activity_source", "source_row", "area_ha"]
 
+MAX_MAGNITUDE = 1e9  # any number of a scenario file (areas: the readers' 1e9 ha; factors are far smaller)
+LONG_TEXT_KEYS = ("description", "citation")  # up to MAX_NOTE_CHARS; every other text is a name (MAX_NAME_CHARS)
 _REQUIRED = object()
 _TEXT_OR_LIST = (str, list)
 # key -> (python types, default, allowed values or None, description)
@@ -219,7 +223,9 @@ class _Problems:
         self.file, self.findings = file, []
 
     def add(self, message: str, key: str, found: Any = "", expected: str = "") -> None:
-        self.findings.append(Finding("error", "scenarios", message, file=self.file, column=key,
+        # A key or scenario name in the location is shown escaped and cut: it is the file's text too.
+        self.findings.append(Finding("error", "scenarios", message, file=self.file,
+                                     column=shorten(printable(key), 120),
                                      found="" if found == "" else str(found), expected=expected))
 
     def raise_if_any(self) -> None:
@@ -254,6 +260,11 @@ def _check_table(data: dict, schema: dict[str, tuple], where: str, problems: _Pr
             problems.add("wrong type", label, repr(value), " or ".join(t.__name__ for t in types))
             ok = False
             continue
+        problem = _value_problem(key, value)
+        if problem:
+            problems.add(problem[0], label, problem[1], problem[2])
+            ok = False
+            continue
         if allowed is not None and value not in allowed:
             problems.add("value not accepted", label, value,
                          " | ".join(a for a in allowed if a) + _near(value, allowed))
@@ -261,6 +272,27 @@ def _check_table(data: dict, schema: dict[str, tuple], where: str, problems: _Pr
             continue
         values[key] = value
     return values if ok else None
+
+
+def _value_problem(key: str, value) -> tuple[str, str, str] | None:
+    """(message, found, expected) for a number or text no input file may hold (the readers' limits)."""
+    if isinstance(value, list):
+        for item in value:
+            problem = _value_problem(key, item)
+            if problem:
+                return problem
+        return None
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, float) and not math.isfinite(value):
+        return "not a finite number", repr(value), "a finite number"
+    if isinstance(value, (int, float)) and abs(value) > MAX_MAGNITUDE:
+        return "above 1e9 in magnitude", f"{value:.6g}", f"at most {MAX_MAGNITUDE:,.0f} in magnitude"
+    if isinstance(value, str):
+        if key in LONG_TEXT_KEYS:
+            return text_problem(value, MAX_NOTE_CHARS, one_line=True, name=False)
+        return text_problem(value, MAX_NAME_CHARS)
+    return None
 
 
 def _terms(value, term: str, label: str, problems: _Problems) -> tuple[str, ...]:
@@ -318,14 +350,17 @@ def load_scenarios(path: str | Path | None, settings: Settings) -> list[Scenario
     if not path.is_file():
         problems.add("scenario file not found", "", expected=f"a file at {path}")
         problems.raise_if_any()
+    check_size(path, settings.max_input_mb)  # refused unread above [limits] max_input_mb, as every input
+    raw_bytes = path.read_bytes()
     try:
-        with path.open("rb") as handle:
-            data = tomllib.load(handle)
-    except tomllib.TOMLDecodeError as exc:
-        problems.add(f"not valid TOML: {exc}", "")
-        problems.raise_if_any()
+        text = raw_bytes[3:].decode("utf-8") if raw_bytes.startswith(b"\xef\xbb\xbf") else raw_bytes.decode("utf-8")
     except UnicodeDecodeError:
-        problems.add("not valid TOML: the file is not UTF-8 text", "")
+        problems.add("not valid TOML: the file is not UTF-8 text", "", expected="the scenario file saved as UTF-8 text")
+        problems.raise_if_any()
+    try:
+        data = parse_toml(text)
+    except ValueError as exc:
+        problems.add(str(exc), "")
         problems.raise_if_any()
 
     top = _check_table(data, TOP_KEYS, "", problems)
@@ -344,7 +379,7 @@ def load_scenarios(path: str | Path | None, settings: Settings) -> list[Scenario
         if not isinstance(raw, dict):
             problems.add("must be a table ([[scenario]])", where, repr(raw))
             continue
-        if isinstance(raw.get("name"), str) and raw["name"].strip():
+        if isinstance(raw.get("name"), str) and raw["name"].strip() and not text_problem(raw["name"]):
             where = f"scenario.{raw['name'].strip()}"
         values = _check_table(raw, SCENARIO_KEYS, where, problems)
         if values is None:

@@ -18,6 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import Finding, SettingsError
+from .textrules import has_invisible, odd_characters
 from .units import MASS_RATIO_CONVENTIONS
 from .vocabulary import TERMS
 
@@ -31,6 +32,7 @@ IPCC2006_TEMPERATE = ("cold_temperate", "warm_temperate")
 # section -> key -> (python types, default, allowed values or None, description)
 _REQUIRED = object()
 MAX_SETTINGS_BYTES = 1024 * 1024  # a settings file is a few kilobytes; a larger one is not read
+COMPILE_DATE_RANGE = ("1980-01-01", "2107-12-31")  # ISO dates compare as text; the range of a zip entry's date
 MAX_SETTING_CHARS = 500  # any text value, such as the inventory name or a path
 _CONTROL = re.compile(r"[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
 SCHEMA: dict[str, dict[str, tuple]] = {
@@ -157,6 +159,56 @@ class Settings:
         return rows
 
 
+MAX_TOML_DEPTH = 8  # tables and arrays inside one another; the settings use 3, a scenario file 5
+
+
+def toml_nesting(data: dict, limit: int = MAX_TOML_DEPTH) -> str:
+    """The key path of the first value nested more than ``limit`` tables or arrays deep ('' when none).
+
+    Walks the parsed document without recursion, so any depth the parser returned can be checked.
+    """
+    stack = [(data, "", 1)]
+    while stack:
+        value, where, depth = stack.pop()
+        if depth > limit:
+            return where or "(top level)"
+        if isinstance(value, dict):
+            stack.extend((v, f"{where}.{k}" if where else str(k), depth + 1)
+                         for k, v in value.items() if isinstance(v, (dict, list)))
+        else:
+            stack.extend((v, f"{where}[{i}]", depth + 1) for i, v in enumerate(value) if isinstance(v, (dict, list)))
+    return ""
+
+
+class TomlNestingError(ValueError):
+    """A TOML document nested deeper than :data:`MAX_TOML_DEPTH`."""
+
+
+def parse_toml(text: str) -> dict:
+    """``tomllib.loads`` with nesting refused: raises ``ValueError`` with a message for a person.
+
+    The parser recurses once per level of nested arrays or inline tables, so a document nested a few
+    thousand levels deep exhausts Python's recursion limit; it is refused like any other invalid TOML.
+    """
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ValueError(f"not valid TOML: {exc}") from None
+    except RecursionError:
+        raise TomlNestingError(f"arrays or tables nested too deeply to read (more than {MAX_TOML_DEPTH} levels are "
+                         "refused)") from None
+    where = toml_nesting(data)
+    if where:
+        raise TomlNestingError(f"arrays or tables nested more than {MAX_TOML_DEPTH} levels deep (at "
+                         f"{printable_key(where)})")
+    return data
+
+
+def printable_key(text: str, limit: int = 80) -> str:
+    text = "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in text)
+    return text if len(text) <= limit else text[:limit] + "..."
+
+
 def _err(message: str, file: str, column: str = "", found: str = "", expected: str = "") -> Finding:
     return Finding("error", "settings", message, file=file, column=column, found=found, expected=expected)
 
@@ -185,9 +237,12 @@ def load_settings(path: str | Path, overrides: dict[str, Any] | None = None) -> 
         raise SettingsError([_err(f"not valid TOML: the file is not UTF-8 text (byte {start}, on line {line})",
                                   fname, expected="the settings saved as UTF-8 text")]) from None
     try:
-        parsed = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SettingsError([_err(f"not valid TOML: {exc}", fname)]) from None
+        parsed = parse_toml(text)
+    except TomlNestingError as exc:
+        raise SettingsError([_err(str(exc), fname, expected="a settings file as in the README: sections of keys, "
+                                  "at most one table inside a key")]) from None
+    except ValueError as exc:
+        raise SettingsError([_err(str(exc), fname)]) from None
     return settings_from_dict(parsed, path, overrides)
 
 
@@ -232,6 +287,13 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
             if isinstance(value, str) and _CONTROL.search(value):
                 problems.append(_err("holds control characters", fname, column=f"{section}.{key}", found=value,
                                      expected="printable text on one line"))
+                continue
+            if isinstance(value, str) and has_invisible(value):
+                problems.append(_err("holds an invisible character or a noncharacter", fname,
+                                     column=f"{section}.{key}", found=f"{value} ({odd_characters(value)})",
+                                     expected="visible text: no format characters (zero-width spaces and joiners, "
+                                              "soft hyphens, byte-order marks) and no noncharacters (U+FFFE, "
+                                              "U+FFFF, U+FDD0 to U+FDEF)"))
                 continue
             if allowed is not None and value not in allowed:
                 near = difflib.get_close_matches(str(value), [a for a in allowed if a], n=1)
@@ -287,6 +349,12 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         except ValueError:
             problems.append(_err("not a date", fname, column="inventory.compile_date", found=compile_date,
                                  expected="YYYY-MM-DD"))
+            compile_date = ""
+    if compile_date and not COMPILE_DATE_RANGE[0] <= compile_date <= COMPILE_DATE_RANGE[1]:
+        # The date stamps the workbook's and archive's zip entries: a zip entry holds 1980 to 2107 only.
+        problems.append(_err("compile_date outside the dates a workbook (zip) file can hold", fname,
+                             column="inventory.compile_date", found=compile_date,
+                             expected=f"a date from {COMPILE_DATE_RANGE[0]} to {COMPILE_DATE_RANGE[1]}"))
     base = path.resolve().parent
     paths: dict[str, Path | None] = {}
     for key in PATH_KEYS:

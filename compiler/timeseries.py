@@ -267,11 +267,18 @@ def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: Findi
     last = np.where(present.any(axis=1), len(years) - 1 - np.argmax(present[:, ::-1], axis=1), -1)
 
     regions = table.index.get_level_values("region")
-    region_years = good.groupby("region")["year"].agg(lambda s: set(int(y) for y in s))
-    region_first = regions.map(lambda r: years.searchsorted(min(region_years[r]))).to_numpy()
-    region_last = regions.map(lambda r: years.searchsorted(max(region_years[r]))).to_numpy()
-    region_has = np.array([[int(y) in region_years[r] for y in years] for r in region_years.index])
-    region_row = pd.Index(region_years.index).get_indexer(regions)
+    # Which years each region reports: a regions x years matrix filled from the rows at once (no Python
+    # loop over regions, which grows slow at tens of thousands of regions).
+    codes, region_names = pd.factorize(good["region"], sort=True)
+    row_years = good["year"].to_numpy(dtype=np.int64)
+    position = np.minimum(years.searchsorted(row_years), len(years) - 1)
+    listed = years[position] == row_years
+    region_has = np.zeros((len(region_names), len(years)), dtype=bool)
+    region_has[codes[listed], position[listed]] = True
+    by_code = pd.Series(row_years).groupby(codes)
+    region_row = pd.Index(region_names).get_indexer(regions)
+    region_first = years.searchsorted(by_code.min().to_numpy())[region_row]
+    region_last = years.searchsorted(by_code.max().to_numpy())[region_row]
 
     inside = (col[None, :] > first[:, None]) & (col[None, :] < last[:, None]) & ~present
     # The region's reporting ends (or starts) early: strata present at that end continue.
