@@ -676,8 +676,9 @@ def approach1(result) -> Approach1Result:
     by_area = by_area.reindex(cells.index)
     out = cells.copy()
     out["activity_half_width_t"] = by_area["half_width"].to_numpy()
-    # Eq. 3.1: the emission is area x factor x g(parameter). Every half-width here is relative to the same
-    # |emission_t|, so Eq. 3.1 holds for them as for the relative uncertainties (and still where emission_t is 0).
+    # Eq. 3.1: each row is the product area x factor x g(parameter), whose three kinds of input are independent,
+    # so the cell's half-widths from each kind combine in quadrature. All are relative to the same |emission_t|,
+    # so Eq. 3.1 holds for them as for relative uncertainties (and still where emission_t is 0).
     out["factor_half_width_t"] = product_uncertainty(by_factor["half_width"], by_param["half_width"])
     out["half_width_t"] = product_uncertainty(out["activity_half_width_t"], out["factor_half_width_t"])
     denominator = out["emission_t"].abs().replace(0.0, np.nan)
@@ -689,16 +690,15 @@ def approach1(result) -> Approach1Result:
                       "uncertainty_pct"]].reset_index(drop=True)
 
     # Totals in CO2-eq per year: Eq. 3.2 over the cells (categories independent, Table 3.2) and, beside it,
-    # over the inputs shared across cells, one kind of input at a time, the kinds combined by Eq. 3.1.
+    # over the inputs shared across cells, one kind of input at a time, the kinds combined as in the cells.
     with_gwp = out[out["gwp"].notna()]
     gwp_rows = rows["gwp"].to_numpy(float)
     has = ~np.isnan(gwp_rows)
     w_all = np.nan_to_num(gwp_rows)
     year, co2eq = rows["year"].to_numpy()[has], (emission * w_all)[has]
-    shared = product_uncertainty(*(
-        sum_uncertainty(co2eq, groups=year, half_width=(u * w_all)[has], shared=ids[has])["half_width"]
-        for u, ids in ((u_factor, fid), (u_param, pid_code), (u_area, rows["draw"].to_numpy()))))
-    shared = pd.Series(shared, index=pd.unique(year))
+    kinds = [sum_uncertainty(co2eq, groups=year, half_width=(u * w_all)[has], shared=ids[has])["half_width"]
+             for u, ids in ((u_factor, fid), (u_param, pid_code), (u_area, rows["draw"].to_numpy()))]
+    shared = pd.Series(product_uncertainty(*kinds), index=kinds[0].index)
     total = sum_uncertainty(with_gwp["co2eq_t"].to_numpy(), groups=with_gwp["year"].to_numpy(),
                             half_width=(with_gwp["half_width_t"] * with_gwp["gwp"]).to_numpy()).sort_index()
     total.index.name = "year"
