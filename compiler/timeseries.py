@@ -31,82 +31,179 @@ FILL_MODES = ("none", "interpolate", "extrapolate", "both")
 SOURCES = ("reported", "interpolated", "extrapolated", "overlap", "surrogate")
 
 
-# --- the published techniques, on arrays ----------------------------------------
+# --- the published techniques, on the strata x years matrix ------------------------
+#
+# Every function takes ``known``: one row per stratum, one column per year of ``years``, the
+# reported values [ha, or whatever unit the series has] and NaN where a year is missing.
 
-def interpolate_linear(years, values, target_years):
-    """Linear interpolation between known years (2006 GL Vol. 1 Section 5.3.3.3) [unit of values]."""
-    return np.interp(np.asarray(target_years, dtype=float), np.asarray(years, dtype=float),
-                     np.asarray(values, dtype=float))
+def interpolate_linear(years, known) -> np.ndarray:
+    """Linear interpolation between known years, on every stratum at once.
 
-
-def extrapolate_trend(years, values, target_years, n_years: int):
-    """Linear trend fitted by least squares to the ``n_years`` known points nearest the targets.
-
-    2006 GL Vol. 1 Section 5.3.3.4 (trend extrapolation). Targets after the
-    known years use the last ``n_years`` points, targets before use the first.
-    """
-    years = np.asarray(years, dtype=float)
-    values = np.asarray(values, dtype=float)
-    target = np.asarray(target_years, dtype=float)
-    out = np.empty_like(target)
-    for side, mask in (("end", target > years.max()), ("start", target < years.min())):
-        if not mask.any():
-            continue
-        pick = slice(-n_years, None) if side == "end" else slice(0, n_years)
-        x, y = years[pick], values[pick]
-        slope, intercept = np.polyfit(x, y, 1) if len(x) > 1 else (0.0, y[0])
-        out[mask] = intercept + slope * target[mask]
-    inside = (target >= years.min()) & (target <= years.max())
-    out[inside] = np.interp(target[inside], years, values)
-    return out
-
-
-def overlap_splice(y_overlap, x_overlap, x_target):
-    """Eq. 5.1 (overlap): y_0 = x_0 x (sum of y_i / sum of x_i over the overlap years).
+    2006 IPCC Guidelines Vol. 1 Section 5.3.3.3 (interpolation).
 
     Parameters
     ----------
-    y_overlap, x_overlap : array_like
-        The series to fill and the surrogate series, in the years where both exist.
-    x_target : array_like
-        The surrogate series in the years to fill.
+    years : array_like, shape (n_years,)
+        The years of the columns, increasing [year].
+    known : array_like, shape (n_strata, n_years)
+        The series, one row per stratum [unit of the series, e.g. ha]; NaN where missing.
+
+    Returns
+    -------
+    numpy.ndarray, shape (n_strata, n_years)
+        ``known`` with every missing value between two known years of its row replaced by
+        ``y_a + (y_b - y_a) (t - t_a) / (t_b - t_a)``, a and b the nearest known years before and
+        after t [unit of the series]; missing values before the first or after the last known year
+        of a row stay NaN.
     """
-    ratio = np.sum(np.asarray(y_overlap, dtype=float)) / np.sum(np.asarray(x_overlap, dtype=float))
-    return np.asarray(x_target, dtype=float) * ratio
+    years = np.asarray(years, dtype=float)
+    known = np.asarray(known, dtype=float)
+    out = known.copy()
+    before, after = _nearest_known(~np.isnan(known))
+    inside = np.isnan(known) & (before >= 0) & (after < known.shape[1])
+    r, c = np.nonzero(inside)
+    a, b = before[r, c], after[r, c]
+    y_a, y_b = known[r, a], known[r, b]
+    # The arithmetic of numpy.interp (slope first), so the result is the same to the last bit.
+    slope = (y_b - y_a) / (years[b] - years[a])
+    out[r, c] = slope * (years[c] - years[a]) + y_a
+    return out
 
 
-def surrogate_scale(y_t, s_t, s_target):
-    """Eq. 5.2 (surrogate): y_0 = y_t x (s_0 / s_t), proportional to the driver s."""
-    return float(y_t) * np.asarray(s_target, dtype=float) / float(s_t)
+def extrapolate_trend(years, known, cells, n_years: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Trend extrapolation at either end of each stratum's series, on every stratum at once.
+
+    2006 IPCC Guidelines Vol. 1 Section 5.3.3.4 (trend extrapolation): a straight line fitted by
+    least squares to the ``n_years`` known points of the row nearest the target end.
+
+    Parameters
+    ----------
+    years : array_like, shape (n_years,)
+        The years of the columns, increasing [year].
+    known : array_like, shape (n_strata, n_years)
+        The series, one row per stratum [unit of the series, e.g. ha]; NaN where missing.
+    cells : array_like of bool, shape (n_strata, n_years)
+        The cells to fill. A cell after the last known year of its row takes the line through
+        the row's last ``n_years`` known points; one before the first known year the line
+        through its first ``n_years``. Cells between known years are not extrapolated.
+    n_years : int
+        Known points per line (fewer where the row has fewer; one point gives a flat line).
+
+    Returns
+    -------
+    values : numpy.ndarray, shape (n_strata, n_years)
+        ``intercept + slope x year`` at the cells [unit of the series]; NaN elsewhere. Not
+        floored at zero (the caller decides).
+    first_used, last_used : numpy.ndarray, shape (n_strata, n_years)
+        Per cell, the first and last year of the points its line went through [year]; NaN
+        elsewhere.
+    """
+    years = np.asarray(years, dtype=float)
+    known = np.asarray(known, dtype=float)
+    cells = np.asarray(cells, dtype=bool)
+    present = ~np.isnan(known)
+    col = np.arange(known.shape[1])[None, :]
+    first = np.where(present.any(axis=1), np.argmax(present, axis=1), known.shape[1])[:, None]
+    last = np.where(present.any(axis=1), known.shape[1] - 1 - np.argmax(present[:, ::-1], axis=1), -1)[:, None]
+    values, first_used, last_used = (np.full(known.shape, np.nan) for _ in range(3))
+    for side, target in (("end", cells & (col > last)), ("start", cells & (col < first))):
+        if not target.any():
+            continue
+        order = np.cumsum(present[:, ::-1], axis=1)[:, ::-1] if side == "end" else np.cumsum(present, axis=1)
+        use = present & (order <= n_years)
+        x = np.where(use, years[None, :], 0.0)
+        y = np.where(use, known, 0.0)
+        n = use.sum(axis=1).astype(float)
+        sx, sy = x.sum(axis=1), y.sum(axis=1)
+        sxx, sxy = (x * x).sum(axis=1), (x * y).sum(axis=1)
+        denom = n * sxx - sx * sx
+        with np.errstate(invalid="ignore", divide="ignore"):
+            slope = np.where(denom > 0, (n * sxy - sx * sy) / denom, 0.0)
+            intercept = np.where(n > 0, (sy - slope * sx) / np.maximum(n, 1), np.nan)
+        line = intercept[:, None] + slope[:, None] * years[None, :]
+        values[target] = line[target]
+        lo = np.broadcast_to(np.where(use, years[None, :], np.inf).min(axis=1)[:, None], known.shape)
+        hi = np.broadcast_to(np.where(use, years[None, :], -np.inf).max(axis=1)[:, None], known.shape)
+        first_used[target], last_used[target] = lo[target], hi[target]
+    return values, first_used, last_used
+
+
+def overlap_splice(known, surrogate) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Eq. 5.1 (overlap): ``y_0 = x_0 x (sum of y_i / sum of x_i)`` over the overlap years, per stratum.
+
+    2006 IPCC Guidelines Vol. 1 Eq. 5.1: a related series x is spliced on, scaled by the ratio of
+    the two series over the years where both exist.
+
+    Parameters
+    ----------
+    known : array_like, shape (n_strata, n_years)
+        The series to fill, y [unit of the series, e.g. ha]; NaN where missing.
+    surrogate : array_like, shape (n_years,) or (n_strata, n_years)
+        The related series, x [its own unit]; NaN where it gives no value.
+
+    Returns
+    -------
+    values : numpy.ndarray, shape (n_strata, n_years)
+        ``x_0 x ratio`` in every year where x is given [unit of y]; NaN where the row's ratio is
+        undefined. The caller picks the cells to fill.
+    ratio : numpy.ndarray, shape (n_strata,)
+        ``sum y_i / sum x_i`` over the overlap years [unit of y per unit of x]; NaN where the
+        row has no overlap year or the surrogate sums to zero or less there.
+    overlap : numpy.ndarray of bool, shape (n_strata, n_years)
+        The overlap years of each row (both series given).
+    """
+    known = np.asarray(known, dtype=float)
+    x = np.broadcast_to(np.asarray(surrogate, dtype=float), known.shape)
+    overlap = ~np.isnan(known) & ~np.isnan(x)
+    sum_y = np.where(overlap, known, 0.0).sum(axis=1)
+    sum_x = np.where(overlap, x, 0.0).sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(sum_x > 0, sum_y / sum_x, np.nan)
+    return x * ratio[:, None], ratio, overlap
+
+
+def surrogate_scale(known, driver) -> tuple[np.ndarray, np.ndarray]:
+    """Eq. 5.2 (surrogate): ``y_0 = y_t x (s_0 / s_t)``, proportional to the driver s, per stratum.
+
+    2006 IPCC Guidelines Vol. 1 Eq. 5.2. The reference year t of each cell is the nearest year
+    where the stratum's value is known and the driver is above zero (the later one on a tie).
+
+    Parameters
+    ----------
+    known : array_like, shape (n_strata, n_years)
+        The series to fill, y [unit of the series, e.g. ha]; NaN where missing.
+    driver : array_like, shape (n_years,) or (n_strata, n_years)
+        The driver series, s [its own unit]; NaN where it gives no value.
+
+    Returns
+    -------
+    values : numpy.ndarray, shape (n_strata, n_years)
+        ``y_t x s_0 / s_t`` in every cell with a reference year [unit of y]; NaN elsewhere. The
+        caller picks the cells to fill.
+    reference : numpy.ndarray of int, shape (n_strata, n_years)
+        Column of the reference year t of each cell; -1 where the row has none.
+    """
+    known = np.asarray(known, dtype=float)
+    s = np.broadcast_to(np.asarray(driver, dtype=float), known.shape)
+    width = known.shape[1]
+    with np.errstate(invalid="ignore"):
+        ref = ~np.isnan(known) & (s > 0)
+    before, after = _nearest_known(ref)
+    col = np.arange(width)[None, :]
+    dist_before = np.where(before >= 0, col - before, width + 1)
+    dist_after = np.where(after < width, after - col, width + 1)
+    pick = np.where(dist_after <= dist_before, after, before)  # the nearer; the later one on a tie
+    has = (dist_before <= width) | (dist_after <= width)
+    safe = np.clip(pick, 0, width - 1)
+    y_t = np.take_along_axis(known, safe, axis=1)
+    s_t = np.take_along_axis(s, safe, axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        values = y_t * s / np.where(s_t > 0, s_t, np.nan)
+    values[~has] = np.nan
+    return values, np.where(has, safe, -1)
 
 
 # --- applying them to the activity table ------------------------------------------
-
-def _matrix_extrapolate(known: np.ndarray, years: np.ndarray, fill_mask: np.ndarray, n_years: int,
-                        side: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Per row: least-squares line through the n known values nearest one end; evaluated where fill_mask.
-
-    Returns the values and, per row, the first and last year of the points the line went through.
-    """
-    out = np.full(known.shape, np.nan)
-    present = ~np.isnan(known)
-    order = np.cumsum(present[:, ::-1], axis=1)[:, ::-1] if side == "end" else np.cumsum(present, axis=1)
-    use = present & (order <= n_years)
-    x = np.where(use, years[None, :], 0.0)
-    y = np.where(use, known, 0.0)
-    n = use.sum(axis=1).astype(float)
-    sx, sy = x.sum(axis=1), y.sum(axis=1)
-    sxx, sxy = (x * x).sum(axis=1), (x * y).sum(axis=1)
-    denom = n * sxx - sx * sx
-    with np.errstate(invalid="ignore", divide="ignore"):
-        slope = np.where(denom > 0, (n * sxy - sx * sy) / denom, 0.0)
-        intercept = np.where(n > 0, (sy - slope * sx) / np.maximum(n, 1), np.nan)
-    line = intercept[:, None] + slope[:, None] * years[None, :]
-    out[fill_mask] = line[fill_mask]
-    used_first = np.where(use, years[None, :], np.inf).min(axis=1)
-    used_last = np.where(use, years[None, :], -np.inf).max(axis=1)
-    return out, used_first, used_last
-
 
 def _nearest_known(present: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Per cell, the column of the nearest known value before it (-1 if none) and after it (width if none)."""
@@ -135,7 +232,6 @@ def _series_fill(table: pd.DataFrame, known: np.ndarray, gaps: np.ndarray, years
 
     file = series.attrs.get("file", "")
     n_rows, width = known.shape
-    present = ~np.isnan(known)
     mask = np.zeros(known.shape, dtype=bool)
     values = np.full(known.shape, np.nan)
     method = np.full(known.shape, "", dtype=object)
@@ -175,7 +271,6 @@ def _series_fill(table: pd.DataFrame, known: np.ndarray, gaps: np.ndarray, years
         at = years_index.get_indexer(part["year"].astype(int))
         driver[at[at >= 0]] = part["value"].to_numpy(dtype=float)[at >= 0]
         y = known[rows]
-        have = present[rows]
         target = gaps[rows] & ~np.isnan(driver)[None, :]
         if not target.any():
             log.add("info", "surrogates", f"series {sid} gives no value in a missing year of the strata it matches",
@@ -183,10 +278,8 @@ def _series_fill(table: pd.DataFrame, known: np.ndarray, gaps: np.ndarray, years
             continue
         label = f"{sid} ({spec['unit']})"
         if spec["method"] == "overlap":
-            both = have & ~np.isnan(driver)[None, :]
-            sum_y = np.where(both, y, 0.0).sum(axis=1)
-            sum_x = np.where(both, driver[None, :], 0.0).sum(axis=1)
-            usable = both.any(axis=1) & (sum_x > 0)
+            fill, ratio, both = overlap_splice(y, driver)
+            usable = ~np.isnan(ratio)
             lacking = target.any(axis=1) & ~usable
             if lacking.any():
                 log.add("error", "surrogates", f"series {sid} shares no year with a reported area of "
@@ -194,9 +287,6 @@ def _series_fill(table: pd.DataFrame, known: np.ndarray, gaps: np.ndarray, years
                         file=file, column="year", found=sid,
                         expected="driver values in some years where the stratum's area is reported, not all zero")
             target &= usable[:, None]
-            with np.errstate(invalid="ignore", divide="ignore"):
-                ratio = sum_y / sum_x
-            fill = driver[None, :] * ratio[:, None]
             first = np.where(both, years[None, :], years.max() + 1).min(axis=1)
             last = np.where(both, years[None, :], years.min() - 1).max(axis=1)
             count = both.sum(axis=1)
@@ -204,28 +294,19 @@ def _series_fill(table: pd.DataFrame, known: np.ndarray, gaps: np.ndarray, years
                              if u else "" for r, n, a, b, u in zip(ratio, count, first, last, usable)], dtype=object)
             cell_text = np.broadcast_to(text[:, None], target.shape)
         else:
-            ref = have & (driver > 0)[None, :]
-            before, after = _nearest_known(ref)
-            col = np.arange(width)[None, :]
-            dist_before = np.where(before >= 0, col - before, width + 1)
-            dist_after = np.where(after < width, after - col, width + 1)
-            pick = np.where(dist_after <= dist_before, after, before)  # the nearer; the later one on a tie
-            usable_cell = (dist_before <= width) | (dist_after <= width)
-            lacking = (target & ~usable_cell).any(axis=1)
+            fill, reference = surrogate_scale(y, driver)
+            lacking = (target & (reference < 0)).any(axis=1)
             if lacking.any():
                 log.add("error", "surrogates", f"series {sid} has no positive value in a year with a reported area "
                         f"of {_describe_strata(table, rows[lacking][:3])} (Eq. 5.2 scales from such a year)",
                         file=file, column="value", found=sid,
                         expected="a driver value above zero in some year where the stratum's area is reported")
-            target &= usable_cell
-            safe = np.clip(pick, 0, width - 1)
-            y_t = np.take_along_axis(y, safe, axis=1)
-            s_t = driver[safe]
-            fill = y_t * driver[None, :] / np.where(s_t > 0, s_t, np.nan)
+            target &= reference >= 0
             cell_text = np.full(target.shape, "", dtype=object)
             r_i, c_i = np.nonzero(target)
-            cell_text[r_i, c_i] = [f"Eq. 5.2 surrogate {label}: {y_t[a, b]:.6g} ha in {years[safe[a, b]]} x "
-                                   f"{driver[b]:.6g} / {s_t[a, b]:.6g}" for a, b in zip(r_i, c_i)]
+            t_i = reference[r_i, c_i]
+            cell_text[r_i, c_i] = [f"Eq. 5.2 surrogate {label}: {y[a, t]:.6g} ha in {years[t]} x "
+                                   f"{driver[b]:.6g} / {driver[t]:.6g}" for a, b, t in zip(r_i, c_i, t_i)]
         r_i, c_i = np.nonzero(target)
         mask[rows[r_i], c_i] = True
         values[rows[r_i], c_i] = fill[r_i, c_i]
@@ -305,20 +386,17 @@ def fill_gaps(activity: pd.DataFrame, years, mode: str, n_years: int, log: Findi
     source = np.full(known.shape, "", dtype=object)
     interp = inside & can_interp
     if interp.any():
-        frame = pd.DataFrame(known, columns=years).interpolate(axis=1, limit_area="inside")
-        filled[interp] = frame.to_numpy()[interp]
+        filled[interp] = interpolate_linear(years, known)[interp]
         prev, nxt = _nearest_known(present)
         r_i, c_i = np.nonzero(interp)
         basis[r_i, c_i] = [f"linear interpolation between {years[prev[a, b]]} and {years[nxt[a, b]]}"
                            for a, b in zip(r_i, c_i)]
         source[interp] = "interpolated"
-    for side, cells in (("end", after & can_extrap), ("start", before & can_extrap)):
-        if not cells.any():
-            continue
-        values, lo, hi = _matrix_extrapolate(known, years.astype(float), cells, n_years, side)
+    cells = (after | before) & can_extrap
+    if cells.any():
+        values, lo, hi = extrapolate_trend(years, known, cells, n_years)
         filled[cells] = values[cells]
-        r_i = np.nonzero(cells)[0]
-        basis[cells] = [f"linear trend of the reported years {lo[a]:.0f}-{hi[a]:.0f}" for a in r_i]
+        basis[cells] = [f"linear trend of the reported years {a:.0f}-{b:.0f}" for a, b in zip(lo[cells], hi[cells])]
         source[cells] = "extrapolated"
     extrapolated = source == "extrapolated"
     negative = extrapolated & (filled < 0)

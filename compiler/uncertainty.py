@@ -138,30 +138,60 @@ def product_uncertainty(*relative_pct) -> np.ndarray | float:
     return float(out) if out.ndim == 0 else out
 
 
-def sum_uncertainty(values, relative_pct) -> float:
-    """Relative uncertainty of a sum of uncorrelated uncertain quantities (Approach 1).
+def sum_uncertainty(values, relative_pct=None, groups=None, *, half_width=None, shared=None):
+    """Relative uncertainty of a sum of uncertain quantities (Approach 1), for one sum or many at once.
 
     Parameters
     ----------
-    values : array_like
-        The quantities summed [any unit, the same for all].
-    relative_pct : array_like
-        Their 95 % half-widths relative to their values [%].
+    values : array_like, shape (n,)
+        The quantities summed, x_i [any unit, the same for all].
+    relative_pct : array_like, shape (n,), optional
+        Their 95 % half-widths relative to their values, U_i [%].
+    groups : array_like, shape (n,), optional
+        The sum each quantity belongs to (any labels: one sum per label); one sum of all when omitted.
+    half_width : array_like, shape (n,), optional
+        Instead of ``relative_pct``: the 95 % half-widths themselves, U_i x_i / 100 [unit of values].
+        Needed where a quantity is 0 but uncertain (a factor of 0 with an interval), whose U_i is
+        undefined.
+    shared : array_like, shape (n,), optional
+        Codes of the uncertain input behind each quantity. Quantities of one group with the same code
+        depend on one input (fully correlated): their half-widths add linearly, with their signs, into
+        one term before the quadrature sum, whose terms are independent.
 
     Returns
     -------
     float
-        95 % half-width of the sum relative to the absolute value of the sum [%]; ``nan`` when
-        the sum is 0.
+        Without ``groups``: U_total, the 95 % half-width of the sum relative to its absolute value
+        [%]; ``nan`` when the sum is 0.
+    pandas.DataFrame
+        With ``groups``: one row per group, indexed by its label in the order of first appearance:
+        ``total`` (sum of the x_i) [unit of values], ``half_width`` (``U_total x |total| / 100``,
+        that is ``sqrt((U_1 x_1)**2 + ... + (U_n x_n)**2) / 100``) [unit of values] and ``pct``
+        (U_total) [%; NaN where the total is 0].
 
     Notes
     -----
     Eq. 3.2 in [1]_: ``U_total = sqrt((U_1 x_1)**2 + ... + (U_n x_n)**2) / |x_1 + ... + x_n|``.
+    The sums of one group are added in the order of the quantities.
     """
     x = np.asarray(values, dtype=float)
-    u = np.asarray(relative_pct, dtype=float)
-    total = abs(x.sum())
-    return float(np.sqrt(np.sum((u * x) ** 2)) / total) if total > 0 else math.nan
+    h = (np.asarray(half_width, dtype=float) if half_width is not None
+         else np.asarray(relative_pct, dtype=float) * x / 100.0)
+    frame = pd.DataFrame({"_g": np.zeros(len(x), dtype=int) if groups is None else np.asarray(groups),
+                          "_x": x, "_h": h})
+    if shared is None:
+        squares = (frame["_h"] ** 2).groupby(frame["_g"], sort=False).sum()
+    else:
+        frame["_s"] = np.asarray(shared)
+        terms = frame.groupby(["_g", "_s"], sort=False)["_h"].sum()  # one term per shared input
+        squares = (terms ** 2).groupby(level="_g", sort=False).sum()
+    out = frame.groupby("_g", sort=False)["_x"].sum().to_frame("total")
+    out["half_width"] = np.sqrt(squares.reindex(out.index))
+    out["pct"] = out["half_width"] / out["total"].abs().replace(0.0, np.nan) * 100.0
+    out.index.name = None
+    if groups is None:
+        return float(out["pct"].iloc[0]) if len(out) else math.nan
+    return out
 
 
 def type_a_sensitivity(base_x, latest_x, base_total: float, latest_total: float) -> np.ndarray:
@@ -597,14 +627,6 @@ class Approach1Result:
     findings: list[Finding] = field(default_factory=list)
 
 
-def _quadrature(keys: pd.DataFrame, by: list[str], group: list[str], values: np.ndarray) -> pd.Series:
-    """sqrt(sum over ``group`` of (sum over ``by`` of values)**2): linear within an input, quadrature across."""
-    frame = keys[by].copy()
-    frame["_v"] = values
-    linear = frame.groupby(by, sort=False)["_v"].sum()
-    return np.sqrt((linear ** 2).groupby(level=group, sort=False).sum())
-
-
 def approach1(result) -> Approach1Result:
     """Approach 1 uncertainty of the base and latest year and of the trend.
 
@@ -626,6 +648,12 @@ def approach1(result) -> Approach1Result:
     this is exactly Eq. 3.1 (``sqrt(U_area**2 + U_factor**2)``); for rows with distinct inputs
     exactly Eq. 3.2. A factor of value 0 enters with its absolute half-width. Rules:
     :data:`METHOD_RULES`.
+
+    The arithmetic is that of :func:`sum_uncertainty` (Eq. 3.2: per cell over the inputs of one
+    kind, with the rows' input codes as ``shared``; per year over the cells and over the shared
+    inputs) and :func:`product_uncertainty` (Eq. 3.1: factor with parameter, then with area; per
+    row; the category's E and F of the trend table). The trend's own quadrature sums are those of
+    Table 3.2 (:func:`trend_uncertainty`) and of the first-order trend over shared inputs.
     """
     model = _build_model(result)
     rows, inputs, cells = model.rows, model.inputs, model.cells
@@ -639,37 +667,44 @@ def approach1(result) -> Approach1Result:
     u_param = np.where(pid >= 0, coef * f_value * g1 * hw[np.maximum(pid, 0)], 0.0)  # dE/dparameter x half-width
     u_area = emission * rows["area_pct"].to_numpy(float) / 100.0  # E x U_area
 
-    keys = rows[["cell", "fid", "pid", "draw", "year"]]
-    fa = _quadrature(keys, ["cell", "fid"], ["cell"], u_factor) ** 2
-    pa = _quadrature(keys.assign(pid=np.where(pid >= 0, pid, -1)), ["cell", "pid"], ["cell"], u_param) ** 2
-    aa = _quadrature(keys, ["cell", "draw"], ["cell"], u_area)
+    # Eq. 3.2 within each cell over the inputs of one kind (rows sharing an input add linearly first).
+    cell = rows["cell"].to_numpy()
+    pid_code = np.where(pid >= 0, pid, -1)
+    by_factor = sum_uncertainty(emission, groups=cell, half_width=u_factor, shared=fid).reindex(cells.index)
+    by_param = sum_uncertainty(emission, groups=cell, half_width=u_param, shared=pid_code).reindex(cells.index)
+    by_area = sum_uncertainty(emission, groups=cell, half_width=u_area, shared=rows["draw"].to_numpy())
+    by_area = by_area.reindex(cells.index)
     out = cells.copy()
-    out["activity_half_width_t"] = aa.reindex(out.index).to_numpy()
-    out["factor_half_width_t"] = np.sqrt(fa.reindex(out.index).to_numpy() + pa.reindex(out.index).to_numpy())
-    out["half_width_t"] = np.hypot(out["activity_half_width_t"], out["factor_half_width_t"])
+    out["activity_half_width_t"] = by_area["half_width"].to_numpy()
+    # Eq. 3.1: each row is the product area x factor x g(parameter), whose three kinds of input are independent,
+    # so the cell's half-widths from each kind combine in quadrature. All are relative to the same |emission_t|,
+    # so Eq. 3.1 holds for them as for relative uncertainties (and still where emission_t is 0).
+    out["factor_half_width_t"] = product_uncertainty(by_factor["half_width"], by_param["half_width"])
+    out["half_width_t"] = product_uncertainty(out["activity_half_width_t"], out["factor_half_width_t"])
     denominator = out["emission_t"].abs().replace(0.0, np.nan)
-    for name, column in (("activity_pct", "activity_half_width_t"), ("factor_pct", "factor_half_width_t"),
-                         ("uncertainty_pct", "half_width_t")):
+    out["activity_pct"] = by_area["pct"].to_numpy()
+    for name, column in (("factor_pct", "factor_half_width_t"), ("uncertainty_pct", "half_width_t")):
         out[name] = out[column] / denominator * 100.0
     cell_table = out[["year", "category_code", "gas", "emission_t", "co2eq_t", "activity_half_width_t",
                       "factor_half_width_t", "half_width_t", "activity_pct", "factor_pct",
                       "uncertainty_pct"]].reset_index(drop=True)
 
-    # Totals in CO2-eq per year.
+    # Totals in CO2-eq per year: Eq. 3.2 over the cells (categories independent, Table 3.2) and, beside it,
+    # over the inputs shared across cells, one kind of input at a time, the kinds combined as in the cells.
     with_gwp = out[out["gwp"].notna()]
     gwp_rows = rows["gwp"].to_numpy(float)
     has = ~np.isnan(gwp_rows)
-    sub = keys[has]
     w_all = np.nan_to_num(gwp_rows)
-    shared = (_quadrature(sub, ["year", "fid"], ["year"], (u_factor * w_all)[has]) ** 2
-              + _quadrature(sub, ["year", "pid"], ["year"], (u_param * w_all)[has]) ** 2
-              + _quadrature(sub, ["year", "draw"], ["year"], (u_area * w_all)[has]) ** 2) ** 0.5
-    total = with_gwp.groupby("year").agg(co2eq_t=("co2eq_t", "sum"))
-    total["half_width_t"] = np.sqrt(((with_gwp["half_width_t"] * with_gwp["gwp"]) ** 2).groupby(
-        with_gwp["year"]).sum())
+    year, co2eq = rows["year"].to_numpy()[has], (emission * w_all)[has]
+    kinds = [sum_uncertainty(co2eq, groups=year, half_width=(u * w_all)[has], shared=ids[has])["half_width"]
+             for u, ids in ((u_factor, fid), (u_param, pid_code), (u_area, rows["draw"].to_numpy()))]
+    shared = pd.Series(product_uncertainty(*kinds), index=kinds[0].index)
+    total = sum_uncertainty(with_gwp["co2eq_t"].to_numpy(), groups=with_gwp["year"].to_numpy(),
+                            half_width=(with_gwp["half_width_t"] * with_gwp["gwp"]).to_numpy()).sort_index()
+    total.index.name = "year"
+    total = total.rename(columns={"total": "co2eq_t", "half_width": "half_width_t", "pct": "uncertainty_pct"})
     total["half_width_shared_inputs_t"] = shared.reindex(total.index)
     denom = total["co2eq_t"].abs().replace(0.0, np.nan)
-    total["uncertainty_pct"] = total["half_width_t"] / denom * 100.0
     total["uncertainty_pct_shared_inputs"] = total["half_width_shared_inputs_t"] / denom * 100.0
     total = total.reset_index()[["year", "co2eq_t", "half_width_t", "uncertainty_pct",
                                  "half_width_shared_inputs_t", "uncertainty_pct_shared_inputs"]]
@@ -693,7 +728,7 @@ def approach1(result) -> Approach1Result:
         a_pct = rows["area_pct"].to_numpy(float)
         f_pct = np.where(f_value != 0, hw[fid] / np.abs(f_value) * 100.0, np.nan)
         p_pct = np.where(pid >= 0, np.abs(g1) * hw[np.maximum(pid, 0)] / np.abs(g) * 100.0, 0.0)
-        row_hw = np.sqrt(u_factor ** 2 + u_param ** 2 + u_area ** 2)
+        row_hw = product_uncertainty(u_factor, u_param, u_area)  # Eq. 3.1 per row
         row_pct = np.where(emission != 0, row_hw / np.abs(emission) * 100.0, np.nan)
     row_table = rows[["year", "category_code", "gas", "pathway", "region", "input_file", "input_row", "factor_id",
                       "parameter_id", "emission_t"]].copy()
@@ -751,7 +786,7 @@ def _approach1_trend(cells: pd.DataFrame, years: list[int]) -> tuple[pd.DataFram
     e = latest["activity_pct"].reindex(index).where(use_latest, base["activity_pct"].reindex(index))
     f = latest["factor_pct"].reindex(index).where(use_latest, base["factor_pct"].reindex(index))
     table = pd.DataFrame({"co2eq_base_t": c, "co2eq_latest_t": d, "activity_pct": e, "factor_pct": f})
-    table["combined_pct"] = np.hypot(e, f)
+    table["combined_pct"] = product_uncertainty(e, f)  # Eq. 3.1
     latest_total = float(d.sum())
     hw_latest = (latest["half_width_t"] * latest["gwp"]).reindex(index).fillna(0.0)
     table["variance_share_latest"] = (100.0 * hw_latest / abs(latest_total)) ** 2 if latest_total else np.nan

@@ -4,31 +4,75 @@ import pandas as pd
 import pytest
 
 from compiler import compile_inventory
+from compiler import timeseries
 from compiler.errors import InputError
 from compiler.timeseries import extrapolate_trend, interpolate_linear, overlap_splice, surrogate_scale
 from conftest import stratum, write_inventory
 
 
+NAN = float("nan")
+
+
 def test_linear_interpolation_by_hand():
-    # 100 ha in 2000, 130 ha in 2003: 110 and 120 ha in 2001 and 2002.
-    assert interpolate_linear([2000, 2003], [100, 130], [2001, 2002]).tolist() == pytest.approx([110, 120])
+    # 2006 GL Vol. 1 Section 5.3.3.3, by hand: 100 ha in 2000, 130 ha in 2003: 110 and 120 ha in 2001 and 2002.
+    # A second stratum, 10 ha in 2001 and 16 ha in 2003: 13 ha in 2002; nothing before its first known year.
+    out = interpolate_linear([2000, 2001, 2002, 2003], [[100, NAN, NAN, 130], [NAN, 10, NAN, 16]])
+    assert out[0].tolist() == pytest.approx([100, 110, 120, 130])
+    assert np.isnan(out[1, 0]) and out[1, 1:].tolist() == pytest.approx([10, 13, 16])
+
+
+def test_linear_interpolation_matches_numpy_interp():
+    # General-purpose reference library: numpy.interp on each row, to the last bit (the demo outputs rely on it).
+    rng = np.random.default_rng(3)
+    known = np.round(rng.uniform(1, 1000, size=(50, 12)), 2)
+    known[rng.random(known.shape) < 0.4] = NAN
+    known[:, 0], known[:, -1] = 5.0, 7.0
+    years = np.arange(2000, 2012)
+    out = interpolate_linear(years, known)
+    for row, values in zip(out, known):
+        ok = ~np.isnan(values)
+        assert np.array_equal(row, np.interp(years, years[ok], values[ok]))
 
 
 def test_trend_extrapolation_by_hand():
-    # Known 2018-2020: 10, 12, 14 (slope 2/yr): 2021 -> 16, 2022 -> 18; and back: 2017 -> 8.
-    out = extrapolate_trend([2018, 2019, 2020], [10, 12, 14], [2017, 2021, 2022], n_years=3)
-    assert out.tolist() == pytest.approx([8, 16, 18])
+    # 2006 GL Vol. 1 Section 5.3.3.4, by hand: known 2018-2020: 10, 12, 14 (slope 2/yr): 2021 -> 16, 2022 -> 18;
+    # and back: 2017 -> 8. The second stratum (5, 5, 8 in 2018-2020, 3-year line: slope 1.5, mean 6 in 2019)
+    # gives 6 + 1.5 x 2 = 9 ha in 2021.
+    known = [[NAN, 10, 12, 14, NAN, NAN], [NAN, 5, 5, 8, NAN, NAN]]
+    cells = np.array([[True, False, False, False, True, True], [False, False, False, False, True, False]])
+    out, first, last = extrapolate_trend(np.arange(2017, 2023), known, cells, n_years=3)
+    assert out[0, [0, 4, 5]].tolist() == pytest.approx([8, 16, 18]) and out[1, 4] == pytest.approx(9.0)
+    assert np.isnan(out[~cells]).all()
+    assert first[0, 4] == 2018 and last[0, 4] == 2020
+
+
+def test_trend_extrapolation_uses_the_n_points_nearest_the_end():
+    # By hand: 1, 2, 3, 10, 20 in 2000-2004; the last 2 points give slope 10: 2005 -> 30; the first 2, slope 1.
+    known = [[NAN, 1, 2, 3, 10, 20, NAN]]
+    cells = np.array([[True, False, False, False, False, False, True]])
+    out, first, last = extrapolate_trend(np.arange(1999, 2006), known, cells, n_years=2)
+    assert out[0, [0, 6]].tolist() == pytest.approx([0, 30])
+    assert (first[0, 0], last[0, 0], first[0, 6], last[0, 6]) == (2000, 2001, 2003, 2004)
 
 
 def test_overlap_eq_5_1_worked_case():
     # 2006 GL Vol. 1 Eq. 5.1: y0 = x0 * (sum y_i / sum x_i) over the overlap years.
     # Overlap years: y = 50, 55, 60; surrogate x = 100, 110, 120 (ratio 165/330 = 0.5); x0 = 90 -> y0 = 45.
-    assert overlap_splice([50, 55, 60], [100, 110, 120], [90]).tolist() == pytest.approx([45])
+    values, ratio, overlap = overlap_splice([[NAN, 50, 55, 60], [NAN, NAN, NAN, NAN]], [90, 100, 110, 120])
+    assert values[0, 0] == pytest.approx(45) and ratio[0] == pytest.approx(0.5)
+    assert overlap[0].tolist() == [False, True, True, True]
+    assert np.isnan(ratio[1]) and np.isnan(values[1]).all()  # no overlap year: Eq. 5.1 undefined
 
 
 def test_surrogate_eq_5_2_worked_case():
     # 2006 GL Vol. 1 Eq. 5.2: y0 = y_t * (s0 / s_t); y_t = 200 ha when the driver s_t = 40; s0 = 30 -> 150 ha.
-    assert surrogate_scale(200, 40, [30]).tolist() == pytest.approx([150])
+    values, reference = surrogate_scale([[NAN, 200]], [30, 40])
+    assert values[0, 0] == pytest.approx(150) and reference[0, 0] == 1
+    # The nearest known year with a positive driver, the later one on a tie (our rule): 2011 lies between 2010
+    # (100 ha, s = 50) and 2012 (130 ha, s = 65): 130 * 55 / 65 = 110 ha, by hand; no reference year: NaN.
+    values, reference = surrogate_scale([[100, NAN, 130], [NAN, NAN, NAN]], [50, 55, 65])
+    assert values[0, 1] == pytest.approx(130 * 55 / 65) and reference[0, 1] == 2
+    assert (reference[1] == -1).all() and np.isnan(values[1]).all()
 
 
 def _series(tmp_path, areas: dict, fill: str, **kw):
@@ -216,3 +260,54 @@ def test_fill_by_land_use_names_land_uses(tmp_path):
     with pytest.raises(Exception) as err:
         compile_inventory(settings)
     assert "timeseries.fill_by_land_use.croplands" in str(err.value) and "unknown land use" in str(err.value)
+
+
+# --- the published functions are the code the compile runs ----------------------------------------------------
+
+
+def _region_ends_early(tmp_path):
+    rows = [stratum(year=y, area_ha=a) for y, a in {2018: 10.0, 2019: 12.0, 2020: 14.0}.items()]
+    rows += [stratum(year=y, region="Other", area_ha=5.0) for y in (2018, 2019, 2020, 2021, 2022)]
+    settings = write_inventory(tmp_path, rows, first=2018, last=2022)
+    settings.write_text(settings.read_text().replace("[inputs]", '[timeseries]\nfill = "both"\ntrend_years = 3\n[inputs]'))
+    return settings
+
+
+def _overlap_case(tmp_path):
+    series = "".join(f"census,overlap,{y},{v},ha,census tables,Testvale,cropland\n"
+                     for y, v in zip(range(2010, 2016), (80, 85, 90, 100, 110, 120)))
+    return _with_series(tmp_path, {2013: 50.0, 2014: 55.0, 2015: 60.0}, series, 2010, 2015)
+
+
+def _surrogate_case(tmp_path):
+    series = "".join(f"livestock,surrogate,{y},{v},units,register,,\n" for y, v in ((2010, 50), (2011, 55), (2012, 60),
+                                                                                   (2013, 65)))
+    return _with_series(tmp_path, {2010: 100.0, 2013: 130.0}, series, 2010, 2013)
+
+
+@pytest.mark.parametrize("name, case, year, expected, changed", [
+    # Each published function, replaced by one that adds 1000 ha to what it returns, moves the compiled area of
+    # the cell it fills by 1000 ha: the compile runs these functions and no other code for the technique.
+    ("interpolate_linear", lambda p: _series(p, {2000: 100.0, 2003: 130.0}, "interpolate"), 2001, 110.0, 1110.0),
+    ("extrapolate_trend", _region_ends_early, 2021, 16.0, 1016.0),
+    ("overlap_splice", _overlap_case, 2010, 40.0, 1040.0),
+    ("surrogate_scale", _surrogate_case, 2011, 110.0, 1110.0),
+])
+def test_the_compile_runs_the_published_function(tmp_path, monkeypatch, name, case, year, expected, changed):
+    settings = case(tmp_path)
+
+    def area():
+        result = compile_inventory(settings)
+        onsite = result.emissions[(result.emissions["pathway"] == "co2_onsite")
+                                  & (result.emissions["region"] == "Testvale")].set_index("year")
+        return onsite.loc[year, "area_ha"]
+
+    assert area() == pytest.approx(expected)
+    original = getattr(timeseries, name)
+
+    def shifted(*args, **kwargs):
+        out = original(*args, **kwargs)
+        return out + 1000.0 if isinstance(out, np.ndarray) else (out[0] + 1000.0, *out[1:])
+
+    monkeypatch.setattr(timeseries, name, shifted)
+    assert area() == pytest.approx(changed)

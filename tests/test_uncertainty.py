@@ -78,6 +78,24 @@ def test_sum_rule_eq_3_2_two_numbers():
     assert math.isnan(U.sum_uncertainty([1.0, -1.0], [5.0, 5.0]))
 
 
+def test_sum_rule_eq_3_2_by_group_and_with_shared_inputs():
+    # [GL3] Eq. 3.2 by hand, two sums at once: group "a" = 100 +/- 10 % and 50 +/- 20 % (9.428 % of 150, half-width
+    # sqrt(10**2 + 10**2) = 14.142); group "b" = 40 +/- 50 % alone (50 %, half-width 20); group "c" sums to 0 (NaN).
+    out = U.sum_uncertainty([100.0, 40.0, 50.0, 3.0, -3.0], [10.0, 50.0, 20.0, 5.0, 5.0], ["a", "b", "a", "c", "c"])
+    assert out.index.tolist() == ["a", "b", "c"]
+    assert out["total"].tolist() == [150.0, 40.0, 0.0]
+    assert out.loc["a", "pct"] == pytest.approx(100 * math.sqrt(200) / 150, rel=1e-12)
+    assert out.loc["a", "half_width"] == pytest.approx(math.sqrt(200), rel=1e-12)
+    assert out.loc["b", "pct"] == pytest.approx(50.0, rel=1e-12) and math.isnan(out.loc["c", "pct"])
+    # Absolute half-widths give the same sums, and serve a quantity of 0 with a half-width (here 6).
+    out = U.sum_uncertainty([100.0, 50.0, 0.0], groups=[1, 1, 1], half_width=[10.0, 10.0, 6.0])
+    assert out.loc[1, "half_width"] == pytest.approx(math.sqrt(236), rel=1e-12)
+    # Our stated rule (METHOD_RULES["correlation"]): quantities sharing an input are one term of the sum, their
+    # half-widths added linearly first: (10 + 10) and 6 in quadrature = sqrt(436).
+    out = U.sum_uncertainty([100.0, 50.0, 0.0], groups=[1, 1, 1], half_width=[10.0, 10.0, 6.0], shared=[7, 7, 8])
+    assert out.loc[1, "half_width"] == pytest.approx(math.sqrt(436), rel=1e-12)
+
+
 def test_trend_table_3_2_by_hand():
     # [GL3] Table 3.2 columns I to M worked by hand for two categories:
     # C = (100, 50), D = (120, 30), E = (10, 20) %, F = (40, 50) %; sum C = sum D = 150, trend 0 %.
@@ -342,3 +360,39 @@ def test_a_row_off_the_model_is_an_error(demo_result):
     broken = dataclasses.replace(demo_result, emissions=emissions)
     with pytest.raises(U.UncertaintyModelError, match="is not area x factor x parameter term x conversion"):
         U.approach1(broken)
+
+
+# --- Approach 1 runs the published equations --------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("name", ["product_uncertainty", "sum_uncertainty"])
+def test_approach1_runs_the_published_equations(tmp_path, monkeypatch, name):
+    # Replacing Eq. 3.1 (product_uncertainty) or Eq. 3.2 (sum_uncertainty) by one that doubles its half-widths moves
+    # Approach 1's results: these functions, and no copy of them, are what approach1 computes with.
+    rows = [stratum(region=r, area_ha=500.0, area_uncertainty_pct=10) for r in ("North", "South")]
+    result = inventory(tmp_path, rows, [N2O_40PCT])
+    before = U.approach1(result)
+    assert cell(before.cells, 2020, "3.C.4", "N2O")["uncertainty_pct"] == pytest.approx(math.sqrt(1650.0), rel=1e-12)
+    original = getattr(U, name)
+
+    def doubled(*args, **kwargs):
+        out = original(*args, **kwargs)
+        if isinstance(out, pd.DataFrame):
+            return out.assign(half_width=2 * out["half_width"], pct=2 * out["pct"])
+        return 2 * out
+
+    monkeypatch.setattr(U, name, doubled)
+    after = U.approach1(result)
+    row = cell(after.cells, 2020, "3.C.4", "N2O")
+    if name == "sum_uncertainty":
+        # Every input's half-width doubled inside the cell and the year total.
+        assert row["uncertainty_pct"] == pytest.approx(2 * math.sqrt(1650.0), rel=1e-12)
+        assert after.total["half_width_shared_inputs_t"].iloc[0] == pytest.approx(
+            2 * before.total["half_width_shared_inputs_t"].iloc[0], rel=1e-12)
+    else:
+        # Eq. 3.1 combines factor with parameter (40 % -> 80 %), then with the areas (sqrt(50) %, Eq. 3.2 alone):
+        # 2 x sqrt(80**2 + 50), by hand; and the per-row Eq. 3.1 of the rows table doubles.
+        assert row["factor_pct"] == pytest.approx(2 * 40.0, rel=1e-12)
+        assert row["uncertainty_pct"] == pytest.approx(2 * math.sqrt(80 ** 2 + 50), rel=1e-12)
+        assert np.allclose(after.rows["uncertainty_pct"], 2 * before.rows["uncertainty_pct"], rtol=1e-12,
+                           equal_nan=True)
