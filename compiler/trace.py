@@ -23,7 +23,7 @@ def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:
         raise InputError([Finding("error", "trace", "not an output folder of this tool (file missing)",
                                   file=", ".join(missing))])
     emissions = pd.read_csv(files["emissions.csv"], keep_default_na=False,
-                            na_values={c: [""] for c in ("emission_t", "co2eq_t", "factor_value", "parameter_value",
+                            na_values={c: [""] for c in ("emission_t", "co2eq_t", "factor_value", "parameter_value", "area_ha",
                                                          "area_basis_ha", "conversion", "emission_basis_t")})
     factors = pd.read_csv(files["factors.csv"], keep_default_na=False)
     fills = folder / "gap_filling.csv"  # how each gap-filled area was made (older output folders lack it)
@@ -85,8 +85,12 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
             basis = _fill_basis(emissions, r)
             src = f"{r['activity_source']} (gap filled{': ' + basis if basis else ''})"
         lines.append(f"[{i}] {r['pathway']}: {stratum}; {src}")
-        lines.append(f"    area {_fmt(r['area_ha'])} ha" + (f"; area the factor applies to {_fmt(r['area_basis_ha'])} ha"
-                                                             if r["area_basis_ha"] != r["area_ha"] and not r["pathway"].startswith("fire") else ""))
+        offsite = r["pathway"] == "co2_offsite"  # extracted peat: a mass of peat, no area
+        if offsite:
+            lines.append(f"    peat extracted {_fmt(r['parameter_value'])} {r['parameter_unit']} ({r['activity_source']})")
+        else:
+            lines.append(f"    area {_fmt(r['area_ha'])} ha" + (f"; area the factor applies to {_fmt(r['area_basis_ha'])} ha"
+                                                                 if r["area_basis_ha"] != r["area_ha"] and not r["pathway"].startswith("fire") else ""))
         fac = f.loc[r["factor_id"]] if r["factor_id"] in f.index else None
         source = ""
         if fac is not None:
@@ -95,10 +99,14 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
                      + (f", {fac['verification']}" if fac is not None else "") + ")")
         if source:
             lines.append(f"      source: {source}")
-        if r["parameter_id"]:
+        if r["parameter_id"] and not offsite:
             lines.append(f"    parameter {r['parameter_id']} = {_fmt(r['parameter_value'])} {r['parameter_unit']}")
         lines.append(f"    equation {r['equation']}")
-        if r["pathway"].startswith("fire"):
+        if offsite:
+            lines.append(f"    {_fmt(r['parameter_value'])} t air-dry peat x {_fmt(r['factor_value'])} t C per t = "
+                         f"{_fmt(r['emission_basis_t'])} {r['emission_basis']}; x {_fmt(r['conversion'], 9)} "
+                         f"({r['emission_basis'][2:]} -> {gas}) = {_fmt(r['emission_t'])} t {gas}")
+        elif r["pathway"].startswith("fire"):
             lines.append(f"    {_fmt(r['area_ha'])} x {_fmt(r['parameter_value'])} x {_fmt(r['factor_value'])} x "
                          f"{_fmt(r['conversion'], 9)} = {_fmt(r['emission_t'])} t {gas}")
         else:

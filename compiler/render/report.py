@@ -18,6 +18,7 @@ from jinja2 import Environment, FileSystemLoader, select_autoescape
 
 from ..categories import NOTATION_KEYS
 from ..engine import PATHWAYS
+from ..offsite_peat import OFFSITE_PATHWAY
 from ..resources import resource_dir
 from ..units import basis_ratio
 from . import charts
@@ -52,6 +53,18 @@ EQUATIONS = {
                 "&nbsp; EF<sub>DOC</sub> = DOC<sub>FLUX_NATURAL</sub> &times; (1 + &Delta;DOC<sub>DRAINAGE</sub>) &times; Frac<sub>DOC-CO2</sub>",
         "symbols": [("EF<sub>DOC,s</sub>", "emission factor for DOC exported from the stratum", "t CO2-C ha<sup>-1</sup> yr<sup>-1</sup>")],
     },
+    "co2_offsite": {
+        "title": "Off-site CO<sub>2</sub> of extracted peat (horticulture and other non-energy uses)",
+        "source": "2006 IPCC Guidelines Vol. 4, Chapter 7, Section 7.2.1.1 (off-site equation; carbon fractions of "
+                  "air-dry peat by nutrient status); reported in 3.B.4.a.i as its own pathway, beside the on-site "
+                  "emissions of the extraction area. Peat burnt for energy is reported in the energy sector",
+        "html": "CO<sub>2</sub>-C<sub>off-site</sub> = &Sigma;<sub>p</sub> Wt<sub>dry peat,p</sub> &times; "
+                "C<sub>fraction,p</sub>; &nbsp; CO<sub>2</sub> = CO<sub>2</sub>-C &times; 44/12",
+        "symbols": [("Wt<sub>dry peat,p</sub>", "air-dry weight of the peat extracted in the year for non-energy use "
+                     "(a volume is converted with its bulk density)", "t yr<sup>-1</sup>"),
+                    ("C<sub>fraction,p</sub>", "carbon fraction of air-dry peat by weight, by nutrient status",
+                     "t C (t air-dry peat)<sup>-1</sup>")],
+    },
     "ch4_soil": {
         "title": "CH<sub>4</sub> from the land surface",
         "source": "2013 Wetlands Supplement Eq. 2.6, first term (drained, Table 2.3); Chapter 3 (rewetted, Table 3.3, whole area)",
@@ -82,6 +95,7 @@ EQUATIONS = {
     },
 }
 METHOD_OF_PATHWAY = {p: ("fire" if p.startswith("fire_") else p) for p in PATHWAYS}
+METHOD_OF_PATHWAY[OFFSITE_PATHWAY] = OFFSITE_PATHWAY  # compiler.offsite_peat, beside the engine's pathways
 
 
 class RestrictedFetcher:
