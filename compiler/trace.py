@@ -67,7 +67,11 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
     if rows.empty:
         raise InputError([Finding("error", "trace", f"nothing reported for {where}",
                                   expected="a category, gas and year present in emissions.csv")])
-    est = rows[rows["notation_key"] == ""]
+    est = rows[rows["notation_key"] == ""].copy()
+    for column in ("area_ha", "area_basis_ha", "factor_value", "parameter_value", "emission_basis_t", "conversion",
+                   "emission_t", "co2eq_t"):  # blank cells (no area for off-site peat rows) read as NaN
+        if column in est and not pd.api.types.is_numeric_dtype(est[column]):
+            est[column] = pd.to_numeric(est[column].replace("", np.nan), errors="coerce")
     lines = [f"Trace of {where}"]
     if est.empty:
         keys = sorted(set(rows["notation_key"]))
