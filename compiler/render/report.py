@@ -172,7 +172,10 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
     rows = []
     factors_by_cell = est.groupby(["category_code", "gas"])["factor_id"].agg(lambda x: sorted(set(x)))
     params_by_cell = est[est["parameter_id"] != ""].groupby(["category_code", "gas"])["parameter_id"].agg(
-        lambda x: sorted(set(x) - {"activity:ditch_fraction"}))
+        lambda x: sorted(i for i in set(x) if not i.startswith("activity:")))  # values of the input data, not factors
+    # The off-site CO2 of extracted peat, shown on its own line under its category (3.B.4.a.i).
+    offsite = est[(est["pathway"] == OFFSITE_PATHWAY).to_numpy(dtype=bool)]
+    offsite_by_cell = offsite.groupby(["category_code", "gas", "year"])["co2eq_t"].sum()
     pathways_by_cell = est.groupby(["category_code", "gas"])["pathway"].agg(lambda x: sorted(set(x)))
     for (code, name, gas), g in cats.groupby(["category_code", "category_name", "gas"], sort=False):
         by_year = g.set_index("year")
@@ -192,7 +195,12 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         reason = _merge_reasons(g.loc[g["notation_key"] != "", "notation_reason"])
         tonnes = [_fmt(by_year.loc[y, "emission_t"], 1) if not by_year.loc[y, "notation_key"] else by_year.loc[y, "notation_key"]
                   for y in (base, latest)]
+        part = None
+        if (code, gas) in set(offsite_by_cell.index.droplevel("year")):
+            part = {"label": "of which off-site CO2 of extracted peat",
+                    "cells": [_fmt(offsite_by_cell.get((code, gas, y), 0.0) / 1000, 2) for y in years]}
         rows.append({"code": code, "name": name, "gas": gas, "cells": cells, "factor_ids": ids, "methods": methods,
+                     "offsite": part,
                      "reason": reason, "tonnes": tonnes, "unit": "kt CO" if gas == "CO" else "kt CO2-eq",
                      "unverified": any(i in set(unverified_used["factor_id"]) for i in ids)})
     never = sorted(set(cats["category_code"]) - {r["code"] for r in rows})
