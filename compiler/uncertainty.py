@@ -71,7 +71,9 @@ METHOD_RULES: dict[str, str] = {
         "data, is treated as exact in both approaches; the findings list them.",
     "area":
         "Area data carry the 95 % half-width of the activity row (area_uncertainty_pct), or "
-        "default_area_pct where the row gives none; burnt areas always carry default_area_pct.",
+        "default_area_pct where the row gives none; burnt areas always carry default_area_pct. The tonnes of "
+        "extracted peat (off-site CO2, which has no area) carry the production file's "
+        f"production_uncertainty_pct, or {DEFAULT_PRODUCTION_PCT:g} % where the row gives none.",
     "correlation":
         "Rows that share an input (a factor id, a parameter id or an area draw) add its contribution "
         "linearly before the quadrature sums of Eq. 3.1 and 3.2; across categories the Approach 1 total "
