@@ -239,8 +239,9 @@ def check_production(peat: pd.DataFrame, activity: pd.DataFrame, settings: Setti
     area = area[area > 0]
     if peat.empty:
         if len(area) and settings.peat_production is None:
+            regions = ", ".join(sorted(set(area.index.get_level_values(0))))
             log.add("info", "peat_production",
-                    f"the activity data hold drained peat-extraction area ({', '.join(sorted(set(area.index.get_level_values(0))))}) "
+                    f"the activity data hold drained peat-extraction area ({regions}) "
                     "but no peat production is given: the off-site CO2 of extracted peat (3.B.4.a.i) is not "
                     "estimated", column="inputs.peat_production", file=str(settings.source or ""),
                     expected="[inputs] peat_production with the tonnes extracted per year, or a note in the "

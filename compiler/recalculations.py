@@ -8,8 +8,9 @@ conversion and the GWP):
     dE = (A1 - A0) x EF0  +  A1 x (EF1 - EF0)
          activity change     factor change (including a GWP set or factor-set change)
 
-which equals E1 - E0 exactly. For the off-site CO2 of extracted peat (pathway ``co2_offsite``) the
-activity A is the tonnes of air-dry peat (the row's ``parameter_value``), as the row has no area. Rows only in the current export are "strata
+which equals E1 - E0 exactly. For the off-site CO2 of extracted peat (pathway
+``co2_offsite``) the activity A is the tonnes of air-dry peat (the row's
+``parameter_value``), as the row has no area. Rows only in the current export are "strata
 added", rows only in the previous "strata removed"; a matched row whose
 category changed moves its whole emission: -E0 from the old category and +E1
 to the new, both "allocation". The parts add up to the total difference of

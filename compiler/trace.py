@@ -23,8 +23,8 @@ def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:
         raise InputError([Finding("error", "trace", "not an output folder of this tool (file missing)",
                                   file=", ".join(missing))])
     emissions = pd.read_csv(files["emissions.csv"], keep_default_na=False,
-                            na_values={c: [""] for c in ("emission_t", "co2eq_t", "factor_value", "parameter_value", "area_ha",
-                                                         "area_basis_ha", "conversion", "emission_basis_t")})
+                            na_values={c: [""] for c in ("emission_t", "co2eq_t", "factor_value", "parameter_value",
+                                                         "area_ha", "area_basis_ha", "conversion", "emission_basis_t")})
     factors = pd.read_csv(files["factors.csv"], keep_default_na=False)
     fills = folder / "gap_filling.csv"  # how each gap-filled area was made (older output folders lack it)
     if fills.is_file():
@@ -91,10 +91,12 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
         lines.append(f"[{i}] {r['pathway']}: {stratum}; {src}")
         offsite = r["pathway"] == "co2_offsite"  # extracted peat: a mass of peat, no area
         if offsite:
-            lines.append(f"    peat extracted {_fmt(r['parameter_value'])} {r['parameter_unit']} ({r['activity_source']})")
+            lines.append(f"    peat extracted {_fmt(r['parameter_value'])} {r['parameter_unit']} "
+                         f"({r['activity_source']})")
         else:
-            lines.append(f"    area {_fmt(r['area_ha'])} ha" + (f"; area the factor applies to {_fmt(r['area_basis_ha'])} ha"
-                                                                 if r["area_basis_ha"] != r["area_ha"] and not r["pathway"].startswith("fire") else ""))
+            basis_differs = r["area_basis_ha"] != r["area_ha"] and not r["pathway"].startswith("fire")
+            lines.append(f"    area {_fmt(r['area_ha'])} ha" + (
+                f"; area the factor applies to {_fmt(r['area_basis_ha'])} ha" if basis_differs else ""))
         fac = f.loc[r["factor_id"]] if r["factor_id"] in f.index else None
         source = ""
         if fac is not None:

@@ -294,3 +294,23 @@ def test_the_demo_reports_the_offsite_part_with_its_source(demo_result):
     ids = set(rows["factor_id"])
     used = demo_result.factors_used.set_index("factor_id").loc[sorted(ids)]
     assert (used["source_id"] == "ipcc2006_v4_ch7").all() and (used["verification"] == "from_memory").all()
+
+
+def test_a_workbook_and_a_semicolon_file_are_read_like_the_other_inputs(tmp_path):
+    # The production file goes through the shared readers: an XLSX sheet, and a semicolon CSV with decimal commas.
+    import openpyxl
+
+    settings = write_inventory(tmp_path)
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.append(["year", "region", "nutrient_status", "use", "volume_m3", "bulk_density_t_per_m3"])
+    sheet.append([2020, "Brackenholm", "Nutrient-poor", "Horticulture", 40000, 0.25])
+    book.save(tmp_path / "peat_production.xlsx")
+    settings.write_text(settings.read_text().replace("peat_production.csv", "peat_production.xlsx"))
+    rows = offsite(compile_inventory(settings, analyses=False))
+    assert rows["parameter_value"].tolist() == [10_000] and rows["nutrient_status"].tolist() == ["poor"]
+    (tmp_path / "peat_production.csv").write_text("year;region;nutrient_status;air_dry_peat_t\n"
+                                                  "2020;Brackenholm;rich;10000,5\n", encoding="utf-8")
+    settings.write_text(settings.read_text().replace("peat_production.xlsx", "peat_production.csv"))
+    rows = offsite(compile_inventory(settings, analyses=False))
+    assert rows["emission_t"].tolist() == pytest.approx([10_000.5 * 0.40 * C_TO_CO2], rel=1e-12)
