@@ -9,11 +9,15 @@ References
 .. [WS2013] IPCC (2014). 2013 Supplement to the 2006 IPCC Guidelines for
    National Greenhouse Gas Inventories: Wetlands. Chapter 2 (Drained Inland
    Organic Soils) and Chapter 3 (Rewetted Organic Soils).
+.. [GL2006] IPCC (2006). 2006 IPCC Guidelines for National Greenhouse Gas
+   Inventories. Volume 4, Chapter 7 (Wetlands), Section 7.2.1.1.
 """
 
 from __future__ import annotations
 
 import numpy as np
+
+from .units import basis_ratio
 
 
 def onsite_co2_c(area_ha, ef_t_co2_c_per_ha):
@@ -110,3 +114,29 @@ def fire_emission(burned_ha, fuel_t_dm_per_ha, ef_g_per_kg_dm, combustion_factor
     """
     return (np.asarray(burned_ha, dtype=float) * np.asarray(fuel_t_dm_per_ha, dtype=float)
             * np.asarray(combustion_factor, dtype=float) * np.asarray(ef_g_per_kg_dm, dtype=float) * 1e-3)
+
+
+def offsite_peat_co2(air_dry_peat_t, c_fraction_air_dry, convention="standard_atomic_weights"):
+    """Off-site CO2 of peat extracted and used in horticulture [t CO2 yr-1].
+
+    Parameters
+    ----------
+    air_dry_peat_t : array_like
+        Air-dry weight of the peat extracted for non-energy use, Wt_dry peat [t yr-1].
+    c_fraction_air_dry : array_like
+        Carbon fraction of air-dry peat by weight, C_fraction [t C (t air-dry peat)-1].
+    convention : str
+        Molar masses of the C -> CO2 ratio (:func:`compiler.units.basis_ratio`):
+        ``standard_atomic_weights`` (44.009/12.011) or ``integer_masses`` (44/12).
+
+    Notes
+    -----
+    Off-site CO2-C equation of [GL2006] Section 7.2.1.1 (Eq. 7.5 from memory;
+    see the verification note of ``factor_tables/offsite_peat_ipcc2006.csv``):
+    CO2-C_off-site = Wt_dry peat x C_fraction, all the carbon of the peat taken
+    as emitted in the year of extraction; then x 44/12 for CO2:
+    CO2 = Wt_dry peat x C_fraction x 44/12.
+    Peat burnt for energy is not in Wt_dry peat (it is reported in the energy sector).
+    """
+    return (np.asarray(air_dry_peat_t, dtype=float) * np.asarray(c_fraction_air_dry, dtype=float)
+            * basis_ratio("CO2-C", "CO2", convention))

@@ -42,6 +42,8 @@ QUANTITIES: dict[str, tuple[str, str, tuple[float, float] | None]] = {
     "ef_fire_co2_c": ("CO2-C emitted per mass of organic soil burnt (Eq. 2.8, Gef)", "g CO2-C kg-1 dm", None),
     "ef_fire_ch4": ("CH4 emitted per mass of organic soil burnt (Eq. 2.8, Gef)", "g CH4 kg-1 dm", None),
     "ef_fire_co": ("CO emitted per mass of organic soil burnt (Eq. 2.8, Gef)", "g CO kg-1 dm", None),
+    "c_fraction_peat": ("carbon fraction of air-dry extracted peat, off-site CO2 (2006 GL Vol. 4 Section 7.2.1.1)",
+                        "fraction", (0.0, 1.0)),
 }
 
 KEYS = FACTOR_KEYS  # the stratum keys a factor row can name (compiler.schema)
@@ -54,7 +56,7 @@ REGISTER_COLUMNS = ["factor_id", "factor_set", "quantity", *KEYS, "value", "unit
 REQUIRED_TEXT = ["factor_id", "factor_set", "quantity", "unit", "source_id", "table", "row_label",
                  "verification"]
 VERIFICATION = ("checked", "from_memory")
-TABLE_PATTERNS = ("drained_*.csv", "rewetted_*.csv", "fire_*.csv")
+TABLE_PATTERNS = ("drained_*.csv", "rewetted_*.csv", "fire_*.csv", "offsite_*.csv")
 
 
 class FactorTableError(CompilerError):

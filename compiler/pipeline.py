@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from . import __version__
+from . import __version__, offsite_peat
 from .activity import (check_fires_within_strata, load_activity, load_fires, load_overrides, load_review,
                        load_review_log, load_surrogates)
 from .aggregate import Aggregates, aggregate
@@ -50,6 +50,7 @@ class InventoryResult:
     key_categories: object = None  # compiler.key_categories.KeyCategoryResult
     review_log: pd.DataFrame = field(default_factory=pd.DataFrame)
     aggregates: Aggregates | None = None  # every total and cross-table an output shows (compiler.aggregate)
+    peat_production: pd.DataFrame = field(default_factory=pd.DataFrame)  # validated [inputs] peat_production
 
     @property
     def totals(self) -> pd.DataFrame:
@@ -124,6 +125,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     log.raise_if_errors()
     emissions, register = engine.emissions, engine.register
     del engine  # the results table is held once, by ``emissions``: each step below replaces it
+    # Off-site CO2 of extracted peat from [inputs] peat_production (pathway co2_offsite; nothing without it).
+    emissions, peat_production = offsite_peat.extend(emissions, activity, overrides, library, register, settings, log)
     emissions["year"] = emissions["year"].astype("int64")
     emissions["input_row"] = emissions["input_row"].astype("int64")
 
@@ -166,7 +169,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
                              categories=categories, factors_used=factors_used, findings=findings, library=library,
                              input_hashes=hashes, gwp=gwp, compile_date=compile_date,
                              finding_list=list(log.findings), recalculation=recalculation, review_log=review_log,
-                             aggregates=aggregate(categories, emissions, activity, settings.years))
+                             aggregates=aggregate(categories, emissions, activity, settings.years),
+                             peat_production=peat_production)
     if analyses:
         _analyse(result, progress, national)
     return result

@@ -56,6 +56,7 @@ from .schema import SERIES_KEYS as STRATUM_SERIES_KEYS
 from .row_model import ROW_MODELS, by_pathway
 from .errors import Finding, InputError
 from .factors import QUANTITIES, unit_kind_ok
+from .offsite_peat import OFFSITE_PATHWAY
 from .readers import MAX_LISTED
 from .units import basis_ratio, parse_unit, tonnes_of_gas_per_unit
 
@@ -567,6 +568,13 @@ def check_implied_emission_factor(result, thresholds: QaqcThresholds) -> list[Fi
     cats = result.categories[result.categories["emission_t"].notna()]
     if cats.empty:
         return []
+    # Off-site CO2 of extracted peat has no area (a mass of peat): left out of the cell's implied factor.
+    offsite = est["pathway"].to_numpy() == OFFSITE_PATHWAY
+    if offsite.any():
+        off = est[offsite].groupby(CELL)["emission_t"].sum().rename("_off")
+        cats = cats.merge(off, on=CELL, how="left")
+        cats = cats.assign(emission_t=cats["emission_t"] - cats["_off"].fillna(0.0)).drop(columns="_off")
+        est = est[~offsite]
     per_row = est.groupby(CELL + ["input_file", _record(est)], as_index=False).agg(
         emission_t=("emission_t", "sum"), area_ha=("area_ha", "first"))
     per_row = per_row[per_row["area_ha"] > 0]
@@ -626,7 +634,9 @@ def check_row_arithmetic(result, thresholds: QaqcThresholds) -> list[Finding]:
     # The area the factor rests on, from the pathway's own equation (compiler.row_model).
     basis = by_pathway(est["pathway"].to_numpy(), lambda model, rows: model.area_basis(area[rows],
                                                                                      np.nan_to_num(param[rows])))
-    expected_emission = np.where(fire, area * param * value * conversion,
+    # Off-site CO2 of extracted peat: tonnes of air-dry peat (parameter) x carbon fraction x C -> CO2.
+    offsite = est["pathway"].to_numpy() == OFFSITE_PATHWAY
+    expected_emission = np.where(fire | offsite, np.where(offsite, 1.0, area) * param * value * conversion,
                                  est["area_basis_ha"].to_numpy(dtype=float) * value * conversion)
     units = est["factor_unit"]
     per_unit = {}
@@ -636,6 +646,7 @@ def check_row_arithmetic(result, thresholds: QaqcThresholds) -> list[Finding]:
         except ValueError:
             per_unit[unit] = np.nan
     unit_conversion = np.where(fire, conversion, units.map(per_unit).to_numpy(dtype=float))
+    unit_conversion = np.where(offsite, basis_ratio("CO2-C", "CO2", convention), unit_conversion)
     gwp = est["gas"].map(result.gwp).to_numpy(dtype=float)
     expected_co2eq = est["emission_t"].to_numpy(dtype=float) * gwp
     problems = {
@@ -822,6 +833,9 @@ def check_duplicated_strata(result, thresholds: QaqcThresholds) -> list[Finding]
     One finding per duplicated stratum and year, naming the pathways and input rows concerned.
     """
     em = result.emissions
+    # Off-site peat rows are one per production row (several uses may share a stratum); the production
+    # reader refuses its own duplicates.
+    em = em[(em["pathway"] != OFFSITE_PATHWAY).to_numpy(dtype=bool)]
     keys = ["year", *ROW_SERIES_KEYS]
     dup = em[em.duplicated(keys, keep=False)]
     if dup.empty:

@@ -8,7 +8,9 @@ conversion and the GWP):
     dE = (A1 - A0) x EF0  +  A1 x (EF1 - EF0)
          activity change     factor change (including a GWP set or factor-set change)
 
-which equals E1 - E0 exactly. Rows only in the current export are "strata
+which equals E1 - E0 exactly. For the off-site CO2 of extracted peat (pathway
+``co2_offsite``) the activity A is the tonnes of air-dry peat (the row's
+``parameter_value``), as the row has no area. Rows only in the current export are "strata
 added", rows only in the previous "strata removed"; a matched row whose
 category changed moves its whole emission: -E0 from the old category and +E1
 to the new, both "allocation". The parts add up to the total difference of
@@ -24,6 +26,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import Finding, InputError
+from .offsite_peat import OFFSITE_PATHWAY
 from .schema import ROW_KEYS
 
 MATCH_KEYS = ROW_KEYS  # rows of two exports are matched on every key of a result row (compiler.schema)
@@ -110,12 +113,27 @@ def load_export(path: str | Path, max_mb: float = 512) -> pd.DataFrame:
     return frame
 
 
+def _with_activity(frame: pd.DataFrame) -> pd.DataFrame:
+    """Rows with ``area_ha`` as their activity: off-site CO2 of extracted peat has no area, its activity is
+    the tonnes of air-dry peat (``parameter_value``), so that a revised production is an activity change."""
+    if "parameter_value" not in frame or "pathway" not in frame:
+        return frame
+    offsite = (frame["pathway"] == OFFSITE_PATHWAY).to_numpy(dtype=bool)
+    if not offsite.any():
+        return frame
+    frame = frame.copy()
+    tonnes = pd.to_numeric(frame.loc[offsite, "parameter_value"], errors="coerce")
+    frame["area_ha"] = frame["area_ha"].astype(float)
+    frame.loc[offsite, "area_ha"] = tonnes.to_numpy(dtype=float)
+    return frame
+
+
 def compare(previous: pd.DataFrame, current: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Return (by_cell, by_row): differences by category, gas and year with their causes, and per row."""
     # Only the years both submissions cover: a year new in the current one is not a recalculation.
     common = sorted(set(previous["year"]) & set(current["year"]))
-    previous = previous[previous["year"].isin(common)]
-    current = current[current["year"].isin(common)]
+    previous = _with_activity(previous[previous["year"].isin(common)])
+    current = _with_activity(current[current["year"].isin(common)])
     cols = MATCH_KEYS + ["category_code", "area_ha", "emission_t", "co2eq_t", "factor_id"]
     prev = previous[cols].groupby(MATCH_KEYS + ["category_code"], as_index=False, dropna=False).agg(
         area_ha=("area_ha", "sum"), emission_t=("emission_t", "sum"), co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)),

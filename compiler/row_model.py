@@ -37,6 +37,9 @@ class RowModel:
     parameter_quantity: str  # "" where the equation takes no second parameter
     equation_name: str  # a function of compiler.equations
     fire: bool = False  # Eq. 2.8: the factor is per mass of dry matter burnt, the parameter the fuel per ha
+    # The activity a row rests on: "area" (ha), or "parameter" where the row has no area and its parameter
+    # is the activity (off-site CO2 of extracted peat: tonnes of air-dry peat; the equation gives t CO2).
+    activity: str = "area"
 
     @property
     def equation(self):
@@ -45,6 +48,8 @@ class RowModel:
 
     def evaluate(self, area_ha, parameter, factor):
         """The equation on the rows: area [ha], parameter (or 0 where none), factor in its own unit."""
+        if self.activity == "parameter":
+            return self.equation(parameter, factor)
         if self.parameter_quantity:
             return self.equation(area_ha, parameter, factor)
         return self.equation(area_ha, factor)
@@ -52,6 +57,8 @@ class RowModel:
     def area_basis(self, area_ha, parameter):
         """The area the factor rests on [ha]: the equation with a factor of one (Eq. 2.6: the land
         surface or the ditches; fires and the other pathways: the area itself)."""
+        if self.activity == "parameter":
+            return np.full(np.shape(area_ha), np.nan)
         if self.fire:
             return np.asarray(area_ha, dtype=float)
         return self.evaluate(area_ha, parameter, 1.0)
@@ -60,6 +67,8 @@ class RowModel:
         """What the parameter contributes per ha and unit of factor: ``area_basis / area`` outside fires
         (1, 1 - Frac_ditch, Frac_ditch), the fuel consumption for fires (the 10^-3 of Eq. 2.8, g kg-1
         to t t-1, is part of the row's conversion)."""
+        if self.activity == "parameter":  # the parameter is the activity: carried in the row's coefficient
+            return 1.0
         if self.fire:
             return self.evaluate(1.0, parameter, 1.0) / self.evaluate(1.0, 1.0, 1.0)
         return self.evaluate(1.0, parameter, 1.0)
@@ -75,6 +84,8 @@ _MODELS = [
     RowModel("fire_ch4", "CH4", "ef_fire_ch4", "fuel_consumption", "fire_emission", fire=True),
     RowModel("fire_co", "CO", "ef_fire_co", "fuel_consumption", "fire_emission", fire=True),
     RowModel("fire_n2o", "N2O", "", "", "fire_emission", fire=True),
+    # 2006 GL Vol. 4 Section 7.2.1.1: computed by compiler.offsite_peat from the production statistics.
+    RowModel("co2_offsite", "CO2", "c_fraction_peat", "peat_production", "offsite_peat_co2", activity="parameter"),
 ]
 ROW_MODELS: dict[str, RowModel] = {m.pathway: m for m in _MODELS}
 

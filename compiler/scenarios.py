@@ -41,6 +41,9 @@ Rules (each one is also stated in the docstring of the function that applies it)
   inventory year's factors); with ``"as_given"`` its own year range is kept.
 * Fires are not projected: scenario emissions exclude the fire pathways, in
   every year including ``Y0``.
+* The off-site CO2 of extracted peat (``co2_offsite``, from production
+  statistics, :mod:`compiler.offsite_peat`) is not projected either: a
+  scenario moves areas, not peat production.
 * A scenario may declare ``postpones = "<other>"``: it must have the same
   measures as the other, except that every rewet measure starts the same
   number of years later (the target year may differ). The summary then

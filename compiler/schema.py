@@ -38,9 +38,11 @@ FIELDS: dict[str, tuple[str, str, str]] = {
     "nutrient_status": ("string", "", "rich | poor | blank"),
     "drainage_depth": ("string", "", "deep | shallow | blank"),
     "subtype": ("string", "", "peat_extraction, plantation type, paddy_rice, or blank"),
-    "pathway": ("string", "", "co2_onsite | co2_doc | ch4_soil | ch4_ditch | n2o_soil | fire_co2 | fire_ch4 | fire_co | fire_n2o"),
+    "pathway": ("string", "", "co2_onsite | co2_doc | ch4_soil | ch4_ditch | n2o_soil | fire_co2 | fire_ch4 | fire_co | fire_n2o | "
+                "co2_offsite (off-site CO2 of extracted peat)"),
     "gas": ("string", "", "CO2 | CH4 | N2O | CO"),
-    "area_ha": ("number", "ha", "area of the stratum (burnt area for fire pathways)"),
+    "area_ha": ("number", "ha", "area of the stratum (burnt area for fire pathways; blank for "
+                "co2_offsite, which has a mass of peat instead)"),
     "factor_id": ("string", "", "id of the emission factor in the factor register"),
     "factor_value": ("number", "", "value of the emission factor, in factor_unit"),
     "factor_unit": ("string", "", "unit of factor_value"),
@@ -52,18 +54,21 @@ FIELDS: dict[str, tuple[str, str, str]] = {
     "fire_type": ("string", "", "wildfire | prescribed (fire pathways)"),
     "land_category_code": ("string", "", "land category of the stratum (differs from category_code for IE rows)"),
     "area_basis_ha": ("number", "ha", "area the factor multiplies: area x (1 - Frac_ditch) for ch4_soil, area x Frac_ditch for ch4_ditch"),
-    "parameter_id": ("string", "", "second parameter: Frac_ditch (CH4) or fuel consumption (fires)"),
+    "parameter_id": ("string", "", "second parameter: Frac_ditch (CH4) or fuel consumption (fires); "
+                     "activity:peat_production, the tonnes of air-dry peat extracted (co2_offsite)"),
     "parameter_value": ("number", "", "value of the second parameter, in parameter_unit"),
     "parameter_unit": ("string", "", "unit of parameter_value"),
     "emission_basis": ("string", "", "mass basis the factor is printed on (t CO2-C, t CH4-C, t N2O-N, ...)"),
     "emission_basis_t": ("number", "t", "emission on that basis, before conversion to the gas"),
     "conversion": ("number", "", "multiplier to t of gas: emission_t = area_basis_ha x factor_value x conversion "
-                   "(fire rows: area_ha x parameter_value x factor_value x conversion)"),
+                   "(fire rows: area_ha x parameter_value x factor_value x conversion; co2_offsite rows: "
+                   "parameter_value x factor_value x conversion)"),
     "default_factor_id": ("string", "", "the Tier 1 default that an override replaced (blank if none)"),
     "notation_key": ("string", "", "NA, NE or IE where the pathway has no estimate; blank otherwise"),
     "notation_reason": ("string", "", "explanation of the notation key"),
     "equation": ("string", "", "equation applied"),
-    "activity_source": ("string", "", "reported | interpolated | extrapolated | overlap | surrogate (gap filling)"),
+    "activity_source": ("string", "", "reported | interpolated | extrapolated | overlap | surrogate (gap filling); "
+                        "co2_offsite rows given as a volume: the conversion to tonnes"),
     "fill_basis": ("string", "", "how a gap-filled area was made: the years interpolated between, the years of the "
                    "trend, or the series, ratio and years of Eq. 5.1 / Eq. 5.2"),
     "input_file": ("string", "", "input file of the stratum or fire row"),

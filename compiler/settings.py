@@ -25,7 +25,7 @@ from .vocabulary import TERMS
 FACTOR_SETS = ("ipcc2013ws", "ipcc2006")
 ATTRIBUTE = {"approach": "uncertainty_approach"}  # settings key -> Settings attribute, where they differ
 PATH_KEYS = ("activity", "fires", "overrides", "factor_review", "national_totals", "scenarios",
-             "previous_submission", "review_log", "surrogates")
+             "previous_submission", "review_log", "surrogates", "peat_production")
 GWP_SETS = ("AR5", "AR4", "AR6", "SAR")
 IPCC2006_TEMPERATE = ("cold_temperate", "warm_temperate")
 
@@ -63,6 +63,9 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "previous_submission": ((str,), "", None, "emissions.csv(.gz) of the previous submission, for recalculations"),
         "review_log": ((str,), "", None, "earlier review findings and their status (CSV or XLSX)"),
         "surrogates": ((str,), "", None, "overlap and surrogate series for gap filling, Eqs. 5.1 and 5.2 (CSV or XLSX)"),
+        "peat_production": ((str,), "", None,
+                            "peat extracted per year (air-dry tonnes or volume), for the off-site CO2 of 3.B.4.a.i "
+                            "(CSV or XLSX)"),
     },
     "uncertainty": {
         "approach": ((str,), "both", ("1", "2", "both"), "Approach 1 (error propagation), 2 (Monte Carlo) or both"),
@@ -121,6 +124,7 @@ class Settings:
     previous_submission: Path | None = None
     review_log: Path | None = None
     surrogates: Path | None = None
+    peat_production: Path | None = None
     uncertainty_approach: str = "both"
     iterations: int = 20000
     seed: int = 20130101
@@ -391,7 +395,7 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         overrides=paths["overrides"], factor_review=paths["factor_review"],
         national_totals=paths["national_totals"], scenarios=paths["scenarios"],
         previous_submission=paths["previous_submission"], review_log=paths["review_log"],
-        surrogates=paths["surrogates"], uncertainty_approach=values["approach"], iterations=values["iterations"],
+        surrogates=paths["surrogates"], peat_production=paths["peat_production"], uncertainty_approach=values["approach"], iterations=values["iterations"],
         seed=values["seed"],
         correlate_activity_across_years=values["correlate_activity_across_years"],
         default_area_pct=float(values["default_area_pct"]),

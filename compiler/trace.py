@@ -24,7 +24,7 @@ def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:
                                   file=", ".join(missing))])
     emissions = pd.read_csv(files["emissions.csv"], keep_default_na=False,
                             na_values={c: [""] for c in ("emission_t", "co2eq_t", "factor_value", "parameter_value",
-                                                         "area_basis_ha", "conversion", "emission_basis_t")})
+                                                         "area_ha", "area_basis_ha", "conversion", "emission_basis_t")})
     factors = pd.read_csv(files["factors.csv"], keep_default_na=False)
     fills = folder / "gap_filling.csv"  # how each gap-filled area was made (older output folders lack it)
     if fills.is_file():
@@ -67,7 +67,11 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
     if rows.empty:
         raise InputError([Finding("error", "trace", f"nothing reported for {where}",
                                   expected="a category, gas and year present in emissions.csv")])
-    est = rows[rows["notation_key"] == ""]
+    est = rows[rows["notation_key"] == ""].copy()
+    for column in ("area_ha", "area_basis_ha", "factor_value", "parameter_value", "emission_basis_t", "conversion",
+                   "emission_t", "co2eq_t"):  # blank cells (no area for off-site peat rows) read as NaN
+        if column in est and not pd.api.types.is_numeric_dtype(est[column]):
+            est[column] = pd.to_numeric(est[column].replace("", np.nan), errors="coerce")
     lines = [f"Trace of {where}"]
     if est.empty:
         keys = sorted(set(rows["notation_key"]))
@@ -85,8 +89,14 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
             basis = _fill_basis(emissions, r)
             src = f"{r['activity_source']} (gap filled{': ' + basis if basis else ''})"
         lines.append(f"[{i}] {r['pathway']}: {stratum}; {src}")
-        lines.append(f"    area {_fmt(r['area_ha'])} ha" + (f"; area the factor applies to {_fmt(r['area_basis_ha'])} ha"
-                                                             if r["area_basis_ha"] != r["area_ha"] and not r["pathway"].startswith("fire") else ""))
+        offsite = r["pathway"] == "co2_offsite"  # extracted peat: a mass of peat, no area
+        if offsite:
+            lines.append(f"    peat extracted {_fmt(r['parameter_value'])} {r['parameter_unit']} "
+                         f"({r['activity_source']})")
+        else:
+            basis_differs = r["area_basis_ha"] != r["area_ha"] and not r["pathway"].startswith("fire")
+            lines.append(f"    area {_fmt(r['area_ha'])} ha" + (
+                f"; area the factor applies to {_fmt(r['area_basis_ha'])} ha" if basis_differs else ""))
         fac = f.loc[r["factor_id"]] if r["factor_id"] in f.index else None
         source = ""
         if fac is not None:
@@ -95,10 +105,14 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
                      + (f", {fac['verification']}" if fac is not None else "") + ")")
         if source:
             lines.append(f"      source: {source}")
-        if r["parameter_id"]:
+        if r["parameter_id"] and not offsite:
             lines.append(f"    parameter {r['parameter_id']} = {_fmt(r['parameter_value'])} {r['parameter_unit']}")
         lines.append(f"    equation {r['equation']}")
-        if r["pathway"].startswith("fire"):
+        if offsite:
+            lines.append(f"    {_fmt(r['parameter_value'])} t air-dry peat x {_fmt(r['factor_value'])} t C per t = "
+                         f"{_fmt(r['emission_basis_t'])} {r['emission_basis']}; x {_fmt(r['conversion'], 9)} "
+                         f"({r['emission_basis'][2:]} -> {gas}) = {_fmt(r['emission_t'])} t {gas}")
+        elif r["pathway"].startswith("fire"):
             lines.append(f"    {_fmt(r['area_ha'])} x {_fmt(r['parameter_value'])} x {_fmt(r['factor_value'])} x "
                          f"{_fmt(r['conversion'], 9)} = {_fmt(r['emission_t'])} t {gas}")
         else:

@@ -8,7 +8,10 @@ estimate row of :attr:`InventoryResult.emissions` is, by the engine's data contr
 
 with ``coefficient = area_ha x conversion`` [ha x t per factor unit]; ``g`` is 1, ``Frac_ditch``
 (ditch CH4), ``1 - Frac_ditch`` (CH4 of the land surface) or the fuel consumption (fires); the
-area multiplier is 1 at the estimate. The uncertain inputs are
+area multiplier is 1 at the estimate. Off-site CO2 of extracted peat (pathway ``co2_offsite``,
+:mod:`compiler.offsite_peat`) has no area: its coefficient is the tonnes of air-dry peat (the row's
+``parameter_value``) x conversion, and its "area" multiplier carries the production uncertainty
+(``production_uncertainty_pct`` of the production file). The uncertain inputs are
 
 * each factor and parameter id (one value per id, shared by every row, region and year that
   uses it: a default used in 1990 and in 2024 is one number in both years);
@@ -43,6 +46,7 @@ import pandas as pd
 
 from .errors import CompilerError, Finding
 from .factors import QUANTITIES
+from .offsite_peat import DEFAULT_PRODUCTION_PCT, OFFSITE_PATHWAY
 from .row_model import by_pathway
 from .schema import SERIES_KEYS
 
@@ -68,7 +72,9 @@ METHOD_RULES: dict[str, str] = {
         "data, is treated as exact in both approaches; the findings list them.",
     "area":
         "Area data carry the 95 % half-width of the activity row (area_uncertainty_pct), or "
-        "default_area_pct where the row gives none; burnt areas always carry default_area_pct.",
+        "default_area_pct where the row gives none; burnt areas always carry default_area_pct. The tonnes of "
+        "extracted peat (off-site CO2, which has no area) carry the production file's "
+        f"production_uncertainty_pct, or {DEFAULT_PRODUCTION_PCT:g} % where the row gives none.",
     "correlation":
         "Rows that share an input (a factor id, a parameter id or an area draw) add its contribution "
         "linearly before the quadrature sums of Eq. 3.1 and 3.2; across categories the Approach 1 total "
@@ -497,7 +503,11 @@ def _build_model(result) -> _Model:
     g1 = np.where(has_param, by_pathway(pathway, lambda model, rows: model.parameter_term(1.0)) - g0, 0.0)
     p_value = est["parameter_value"].to_numpy(float)
     g_central = g0 + g1 * np.nan_to_num(p_value)
-    coef = est["area_ha"].to_numpy(float) * est["conversion"].to_numpy(float)
+    # The activity of a row is its area; off-site CO2 of extracted peat has none: its activity is the
+    # tonnes of air-dry peat, carried as the row's parameter (compiler.offsite_peat).
+    offsite = pathway == OFFSITE_PATHWAY
+    amount = np.where(offsite, p_value, est["area_ha"].to_numpy(float))
+    coef = amount * est["conversion"].to_numpy(float)
     f_value = est["factor_value"].to_numpy(float)
     modelled = coef * f_value * g_central
     emission = est["emission_t"].to_numpy(float)
@@ -525,14 +535,25 @@ def _build_model(result) -> _Model:
     from_activity = (est["input_file"] == activity_file).to_numpy()
     pct = np.where(from_activity, est["input_row"].astype(int).map(pct_by_row).to_numpy(float), np.nan)
     default_pct = float(settings.default_area_pct)
-    defaulted = np.isnan(pct)
+    defaulted = np.isnan(pct) & ~offsite
     est["area_pct"] = np.where(defaulted, default_pct, pct)
+    if offsite.any():  # production statistics: the file's production_uncertainty_pct, else the default
+        peat = getattr(result, "peat_production", None)
+        by_row = ({} if peat is None or peat.empty else
+                  dict(zip(peat["_row"].astype(int), peat["production_uncertainty_pct"].astype(float))))
+        given = est.loc[offsite, "input_row"].astype(int).map(by_row).to_numpy(float)
+        est.loc[offsite, "area_pct"] = np.where(np.isnan(given), DEFAULT_PRODUCTION_PCT, given)
+        if np.isnan(given).any():
+            findings.append(Finding("info", "uncertainty_area",
+                                    f"{int(np.isnan(given).sum())} off-site peat rows of the reported years take the "
+                                    f"default production uncertainty of {DEFAULT_PRODUCTION_PCT:g} % (no "
+                                    "production_uncertainty_pct given)", column="production_uncertainty_pct"))
     if (defaulted & from_activity).any():
         findings.append(Finding("info", "uncertainty_area",
                                 f"{int((defaulted & from_activity).sum())} estimate rows of the reported years take "
                                 f"the default area uncertainty of {default_pct:g} % (no area_uncertainty_pct given)",
                                 column="area_uncertainty_pct"))
-    if (~from_activity).any():
+    if (~from_activity & ~offsite).any():
         findings.append(Finding("info", "uncertainty_area",
                                 f"burnt areas carry the default area uncertainty of {default_pct:g} % "
                                 "(uncertainty.default_area_pct)"))

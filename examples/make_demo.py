@@ -4,7 +4,10 @@ Norrowmoor Province is invented for this demo, as are its districts, its
 monitoring network and every number below. The areas follow simple rules so
 that a reader can recompute them: drainage spreads until the late 1990s,
 peat extraction winds down after 2010, and rewetting grows from 2000 on,
-with the total organic-soil area of each district held constant.
+with the total organic-soil area of each district held constant. Orlathmoor's
+extraction company reports the peat it takes off site each year (for horticulture, and
+until 2009 also milled peat for a district heating plant, which the inventory leaves to
+the energy sector); since 2021 it reports volumes with their bulk density.
 """
 
 from __future__ import annotations
@@ -94,6 +97,34 @@ def write_series() -> None:
         writer.writerows(rows)
 
 
+def write_peat_production() -> None:
+    """Peat taken off Orlathmoor's extraction area: tonnes of air-dry peat, from 2021 a volume and bulk density."""
+    header = ["year", "region", "nutrient_status", "use", "air_dry_peat_t", "volume_m3", "bulk_density_t_per_m3",
+              "moisture_content", "production_uncertainty_pct", "note"]
+    density = 0.22  # t air-dry peat m-3 (invented)
+    out = []
+    for y in range(FIRST, LAST + 1):
+        area = ramp(y, 2010, 2020, 1800.0, 300.0)
+        horticulture = round(area * (25.0 + (y % 4)), -1)  # about 25 to 28 t per ha and year
+        if y <= 2020:
+            out.append([y, "Orlathmoor", "poor", "horticulture", f"{horticulture:.0f}", "", "", "0.45", "5",
+                        "extraction company's annual return (invented)"])
+        else:
+            volume = round(horticulture / density, -2)
+            out.append([y, "Orlathmoor", "poor", "horticulture", "", f"{volume:.0f}", f"{density:g}", "0.45", "15",
+                        "extraction company's return in cubic metres (invented)"])
+        if y <= 2009:
+            out.append([y, "Orlathmoor", "poor", "energy", f"{area * 18.0:.0f}", "", "", "0.5", "5",
+                        "milled peat for the district heating plant (invented)"])
+        if 2005 <= y <= 2012:
+            out.append([y, "Orlathmoor", "rich", "horticulture", f"{1500 + 100 * (y - 2005):.0f}", "", "", "0.45", "10",
+                        "sedge peat from the lower layer of the old field (invented)"])
+    with open(HERE / "peat_production.csv", "w", newline="", encoding="utf-8") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(header)
+        writer.writerows(out)
+
+
 def main() -> None:
     HERE.mkdir(parents=True, exist_ok=True)
     header = ["year", "region", "climate_zone", "land_use", "soil_status", "nutrient_status", "drainage_depth",
@@ -127,6 +158,7 @@ def main() -> None:
         writer.writerow(header)
         writer.writerows(out)
     write_series()
+    write_peat_production()
     fires = [
         ["year", "region", "climate_zone", "land_use", "soil_status", "fire_type", "burned_ha"],
         [1997, "Kelavi Lowlands", "tropical", "forest_land", "drained", "wildfire", 120.0],

@@ -2,7 +2,8 @@
 
 It stands for last year's export of the invented demo region: submission 2025 covering 1990-2023,
 compiled with AR4 GWPs, before the Quillfen monitoring network's factor was adopted, and with the
-older Vennmarsh cropland statistics (3 % less area). Written to examples/demo/previous/emissions.csv.gz.
+older Vennmarsh cropland statistics (3 % less area), and before the off-site CO2 of extracted peat
+was estimated (no peat production input). Written to examples/demo/previous/emissions.csv.gz.
 """
 
 from __future__ import annotations
@@ -26,7 +27,8 @@ def main() -> None:
         settings = settings.replace("submission_year = 2026", "submission_year = 2025")
         settings = settings.replace("last_year = 2024", "last_year = 2023").replace('gwp = "AR5"', 'gwp = "AR4"')
         settings = settings.replace('overrides = "overrides.csv"\n', "")
-        settings = "\n".join(line for line in settings.splitlines() if not line.startswith("previous_submission"))
+        settings = "\n".join(line for line in settings.splitlines()
+                             if not line.startswith(("previous_submission", "peat_production")))
         (work / "inventory.toml").write_text(settings + "\n")
         activity = pd.read_csv(work / "activity.csv", dtype=str, keep_default_na=False)
         activity = activity[activity["year"].astype(int) <= 2023]

@@ -22,8 +22,10 @@ FINGERPRINTS = [
     ("fire_ipcc2013ws.csv", 13, 15, 3031.0, "707411a6ed5b36a6fd77a46072076b84a197285e50b57d803840fe83ed564a6e"),
     ("gwp.csv", 13, 11, 1280.8, "57182511af089f33525d168ae3e8f379e5b927f8173d3944d7aeecc5c87e5aa3"),
     ("pathway_coverage.csv", 28, 8, None, "972741bd042b81a2ff886ddd7be26f6336173059d918702aa26dd75d16d354e7"),
-    ("reporting_allocation.csv", 28, 7, None, "bf4ecb1c13b20ff58f38c1a05ed12ca8d8059c559145192298bd1f82809fbcf4"),
+    # 29 rows: the co2_offsite row (off-site CO2 of extracted peat, 3.B.4.a.i) added.
+    ("reporting_allocation.csv", 29, 7, None, "64672c9838196c6421d924617a1549778f56d411b0329b2e9188bc41332cbf30"),
     ("reporting_categories.csv", 18, 5, None, "5e99e555e12484e1b71df1435db9ea07cd200042ddb96f87f89325f1797bb645"),
+    ("offsite_peat_ipcc2006.csv", 4, 19, 1.7, "81851578c462e244e211f716bd62c7731221652a2dbb56d109e8e55749881de1"),
     ("rewetted_ipcc2013ws.csv", 13, 19, 527.21, "a6534f6a52294d782af611f1b7f00203c19262d20d0505226f6c1d3bb4452bca"),
     ("climate_response_ar5.csv", 28, 13, None, "8ab480c7aaa9052a61280ca1b36f94974b4e9b836ee49df1ffc201eddc9a72eb"),
     ("sources.csv", 19, 5, None, "2088d399e8df1998cc6afab6888c5a7e3bf3f93bf1353a1fb0e7e5e404d6e65f"),

@@ -160,8 +160,9 @@ def test_user_text_is_never_a_formula(tmp_path, demo_result):
 def test_manifest(demo_output, demo_result):
     m = json.loads((demo_output / "manifest.json").read_text())
     assert m["tool"] == "histosol" and m["settings"]["method.gwp"] == "AR5"
+    # peat_production: the demo's peat production series (off-site CO2 of extracted peat) is an input too.
     assert set(m["inputs_sha256"]) == {"activity", "fires", "overrides", "factor_review", "previous_submission",
-                                       "review_log", "scenarios", "surrogates"}
+                                       "review_log", "scenarios", "surrogates", "peat_production"}
     assert "drained_ipcc2013ws.csv" in m["factor_tables_sha256"]
     assert m["area_ha_by_year"]["2024"] == pytest.approx(demo_result.activity.query("year == 2024")["area_ha"].sum())
     assert m["outputs_sha256"]["emissions.csv"] == sha(demo_output / "emissions.csv")

@@ -1,6 +1,7 @@
 """Gap filling of the area series (2006 IPCC Guidelines Vol. 1 Ch. 5) against hand-computed series."""
 
 import pandas as pd
+import numpy as np
 import pytest
 
 from compiler import compile_inventory

@@ -18,11 +18,11 @@ import pandas as pd  # noqa: E402
 PATHWAY_STYLE = {
     "co2_onsite": ("#4a2f1f", ""), "co2_doc": ("#9b6b43", "//"), "ch4_soil": ("#1f6f5c", ""),
     "ch4_ditch": ("#79c2a8", ".."), "n2o_soil": ("#c8a434", "\\\\"), "fire_co2": ("#7a1f0a", "xx"),
-    "fire_ch4": ("#e0874a", "++"),
+    "fire_ch4": ("#e0874a", "++"), "co2_offsite": ("#c9b49a", "oo"),
 }
 PATHWAY_LABEL = {
     "co2_onsite": "CO2 on site", "co2_doc": "CO2 from DOC", "ch4_soil": "CH4 soil", "ch4_ditch": "CH4 ditches",
-    "n2o_soil": "N2O", "fire_co2": "fire CO2", "fire_ch4": "fire CH4",
+    "n2o_soil": "N2O", "fire_co2": "fire CO2", "fire_ch4": "fire CH4", "co2_offsite": "CO2 of extracted peat",
 }
 LAND_USE_STYLE = {
     "forest_land": ("#2e5e3e", ""), "cropland": ("#b07c2a", "//"), "grassland": ("#8cbf5a", ".."),

@@ -17,6 +17,7 @@ import pandas as pd
 from jinja2 import Environment, FileSystemLoader, select_autoescape
 
 from ..categories import NOTATION_KEYS
+from ..offsite_peat import OFFSITE_PATHWAY
 from ..row_model import ROW_MODELS
 from ..resources import resource_dir
 from ..units import basis_ratio
@@ -51,6 +52,18 @@ EQUATIONS = {
         "html": "CO<sub>2</sub>-C<sub>DOC</sub> = &Sigma;<sub>s</sub> A<sub>s</sub> &times; EF<sub>DOC,s</sub>; "
                 "&nbsp; EF<sub>DOC</sub> = DOC<sub>FLUX_NATURAL</sub> &times; (1 + &Delta;DOC<sub>DRAINAGE</sub>) &times; Frac<sub>DOC-CO2</sub>",
         "symbols": [("EF<sub>DOC,s</sub>", "emission factor for DOC exported from the stratum", "t CO2-C ha<sup>-1</sup> yr<sup>-1</sup>")],
+    },
+    "co2_offsite": {
+        "title": "Off-site CO<sub>2</sub> of extracted peat (horticulture and other non-energy uses)",
+        "source": "2006 IPCC Guidelines Vol. 4, Chapter 7, Section 7.2.1.1 (off-site equation; carbon fractions of "
+                  "air-dry peat by nutrient status); reported in 3.B.4.a.i as its own pathway, beside the on-site "
+                  "emissions of the extraction area. Peat burnt for energy is reported in the energy sector",
+        "html": "CO<sub>2</sub>-C<sub>off-site</sub> = &Sigma;<sub>p</sub> Wt<sub>dry peat,p</sub> &times; "
+                "C<sub>fraction,p</sub>; &nbsp; CO<sub>2</sub> = CO<sub>2</sub>-C &times; 44/12",
+        "symbols": [("Wt<sub>dry peat,p</sub>", "air-dry weight of the peat extracted in the year for non-energy use "
+                     "(a volume is converted with its bulk density)", "t yr<sup>-1</sup>"),
+                    ("C<sub>fraction,p</sub>", "carbon fraction of air-dry peat by weight, by nutrient status",
+                     "t C (t air-dry peat)<sup>-1</sup>")],
     },
     "ch4_soil": {
         "title": "CH<sub>4</sub> from the land surface",
@@ -158,7 +171,10 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
     rows = []
     factors_by_cell = est.groupby(["category_code", "gas"])["factor_id"].agg(lambda x: sorted(set(x)))
     params_by_cell = est[est["parameter_id"] != ""].groupby(["category_code", "gas"])["parameter_id"].agg(
-        lambda x: sorted(set(x) - {"activity:ditch_fraction"}))
+        lambda x: sorted(i for i in set(x) if not i.startswith("activity:")))  # values of the input data, not factors
+    # The off-site CO2 of extracted peat, shown on its own line under its category (3.B.4.a.i).
+    offsite = est[(est["pathway"] == OFFSITE_PATHWAY).to_numpy(dtype=bool)]
+    offsite_by_cell = offsite.groupby(["category_code", "gas", "year"])["co2eq_t"].sum()
     pathways_by_cell = est.groupby(["category_code", "gas"])["pathway"].agg(lambda x: sorted(set(x)))
     for (code, name, gas), g in cats.groupby(["category_code", "category_name", "gas"], sort=False):
         by_year = g.set_index("year")
@@ -178,7 +194,12 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         reason = _merge_reasons(g.loc[g["notation_key"] != "", "notation_reason"])
         tonnes = [_fmt(by_year.loc[y, "emission_t"], 1) if not by_year.loc[y, "notation_key"] else by_year.loc[y, "notation_key"]
                   for y in (base, latest)]
+        part = None
+        if (code, gas) in set(offsite_by_cell.index.droplevel("year")):
+            part = {"label": "of which off-site CO2 of extracted peat",
+                    "cells": [_fmt(offsite_by_cell.get((code, gas, y), 0.0) / 1000, 2) for y in years]}
         rows.append({"code": code, "name": name, "gas": gas, "cells": cells, "factor_ids": ids, "methods": methods,
+                     "offsite": part,
                      "reason": reason, "tonnes": tonnes, "unit": "kt CO" if gas == "CO" else "kt CO2-eq",
                      "unverified": any(i in set(unverified_used["factor_id"]) for i in ids)})
     never = sorted(set(cats["category_code"]) - {r["code"] for r in rows})
