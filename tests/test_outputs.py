@@ -41,7 +41,9 @@ def test_workbook_sheets_and_summary_equal_the_tables(demo_output, demo_result):
     assert wb.sheetnames == ["summary", "categories", "categories_long", "strata", "trace", "recalculations",
                              "gap_filling", "review_log", "uncertainty_approach1", "uncertainty_total", "uncertainty_trend",
                              "monte_carlo", "monte_carlo_trend", "distributions", "convergence", "key_categories",
-                             "factors", "findings", "settings"]
+                             "factors", "findings", "settings",
+                             # the submission tables, appended after the others (compiler/render/submission.py)
+                             "organic_soils", "timeseries_gases", "timeseries_categories"]
     ws = wb["summary"]
     header_row = next(r for r in range(1, 10) if ws.cell(r, 1).value == "category_code")
     assert ws.freeze_panes == f"A{header_row + 1}"

@@ -226,6 +226,10 @@ def write_workbook(result, path: Path) -> None:
     _sheet(wb, "settings", ["setting", "value", "description"], settings_rows, widths={"setting": 44, "value": 66,
                                                                                         "description": 60})
 
+    from .submission import add_sheets
+
+    add_sheets(wb, result)  # organic soils and the time series, after the other sheets
+
     stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00")
     wb.properties.creator = f"histosol {result.version}"
     wb.properties.created = stamp

@@ -1,0 +1,253 @@
+"""The reporting tables of a submission, aggregated once from the results table.
+
+Renderers (workbook, CSV, report, methods chapter) take these frames and only
+format them; none of them sums an emission of its own.
+
+``organic_soils``
+    One row per year, land category, line (peat extraction and rewetted
+    wetlands are lines of their own), soil status (drained | rewetted),
+    climate zone and nutrient status: the area [kha], the implied emission
+    factor of each soil pathway on its factor's basis, and the emissions in
+    kt of each gas. The implied emission factor of a pathway is
+
+        IEF = sum(E_basis) / sum(A_basis)
+
+    with E_basis the emission of the estimate rows on the factor's mass basis
+    (``emission_basis_t`` where the row's basis is that basis, otherwise the
+    emission in t of gas converted by the run's molar masses) and A_basis the
+    area the factor multiplies (``area_basis_ha``: the stratum area, or its
+    ditch or ditch-free part for CH4). An IEF on zero area is blank.
+
+``gas_series``
+    Every year: each gas in kt of gas and in kt CO2-eq, and the total in
+    kt CO2-eq, with the trend since the base year [%].
+
+``category_series``
+    Every year: each category and gas in kt of gas (or its notation key),
+    a total row per gas, and the trend since the base year [%].
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from .units import basis_ratio
+
+# pathway -> (mass basis of the implied factor, multiplier from t to the unit's mass, unit)
+IEF_BASIS = {
+    "co2_onsite": ("CO2-C", 1.0, "t CO2-C ha-1 yr-1"),
+    "co2_doc": ("CO2-C", 1.0, "t CO2-C ha-1 yr-1"),
+    "ch4_soil": ("CH4", 1000.0, "kg CH4 ha-1 yr-1"),
+    "ch4_ditch": ("CH4", 1000.0, "kg CH4 ha-1 yr-1"),
+    "n2o_soil": ("N2O-N", 1000.0, "kg N2O-N ha-1 yr-1"),
+}
+GAS_OF_PATHWAY = {"co2_onsite": "CO2", "co2_doc": "CO2", "ch4_soil": "CH4", "ch4_ditch": "CH4", "n2o_soil": "N2O"}
+SOIL_PATHWAYS = tuple(IEF_BASIS)
+LINE_KEYS = ["year", "land_category_code", "line", "soil_status", "climate_zone", "nutrient_status"]
+ORGANIC_SOILS_COLUMNS = [
+    *LINE_KEYS[:2], "land_category_name", *LINE_KEYS[2:], "area_kha",
+    *(f"ief_{p}" for p in SOIL_PATHWAYS),
+    "co2_soil_kt", "co2_fire_kt", "ch4_kt", "n2o_kt", "n2o_reported_under", "qaqc_id", "qaqc_findings",
+]
+# column -> (unit, description): what the renderers print beside each column
+ORGANIC_SOILS_FIELDS = {
+    "year": ("", "inventory year"),
+    "land_category_code": ("", "land category the strata belong to"),
+    "land_category_name": ("", "name of the land category"),
+    "line": ("", "line of the table: the land category, or peat extraction / rewetted wetlands / other wetlands"),
+    "soil_status": ("", "drained | rewetted"),
+    "climate_zone": ("", "climate zone of the strata"),
+    "nutrient_status": ("", "rich | poor | blank"),
+    "area_kha": ("kha", "area of organic soils in the line"),
+    **{f"ief_{p}": (IEF_BASIS[p][2], f"implied emission factor of {p}: emission on the factor's basis / area it "
+                    "rests on (blank on zero area)") for p in SOIL_PATHWAYS},
+    "co2_soil_kt": ("kt CO2", "on-site CO2 and DOC (co2_onsite + co2_doc)"),
+    "co2_fire_kt": ("kt CO2", "CO2 of organic-soil fires on the line's land category"),
+    "ch4_kt": ("kt CH4", "CH4 of the soil and of ditches (ch4_soil + ch4_ditch)"),
+    "n2o_kt": ("kt N2O", "N2O of the soil (n2o_soil)"),
+    "n2o_reported_under": ("", "category the line's N2O is reported under"),
+    "qaqc_id": ("", "QA/QC check of implied emission factors on this land category and year (findings sheet)"),
+    "qaqc_findings": ("", "number of findings of that check on this land category and year"),
+}
+IEF_CHECK = "implied_emission_factor"
+
+
+@dataclass
+class ReportingTables:
+    organic_soils: pd.DataFrame
+    gas_series: pd.DataFrame
+    category_series: pd.DataFrame
+    base_year: int
+    latest_year: int
+
+    @property
+    def year_columns(self) -> list[str]:
+        return [str(y) for y in range(self.base_year, self.latest_year + 1)]
+
+
+def reporting_tables(result) -> ReportingTables:
+    """The reporting tables of ``result``, made once per results table and kept on the result."""
+    cached = getattr(result, "_reporting_tables", None)
+    if cached is not None and cached[0] is result.emissions and cached[1] is result.categories:
+        return cached[2]
+    years = list(result.settings.years)
+    tables = ReportingTables(
+        organic_soils=organic_soils_table(result.emissions, result.library.categories, result.settings.mass_ratios,
+                                          result.finding_list),
+        gas_series=gas_series(result.categories, result.gwp, years),
+        category_series=category_series(result.categories, years),
+        base_year=years[0], latest_year=years[-1])
+    result._reporting_tables = (result.emissions, result.categories, tables)
+    return tables
+
+
+def _line(frame: pd.DataFrame) -> pd.Series:
+    """Peat extraction and rewetted wetlands as lines of their own; any other stratum's line is its land category."""
+    line = frame["land_category_name"].astype(object).copy()
+    wet = (frame["land_use"] == "wetlands").to_numpy(dtype=bool)
+    peat = wet & (frame["subtype"] == "peat_extraction").to_numpy(dtype=bool)
+    rewetted = wet & ~peat & (frame["soil_status"] == "rewetted").to_numpy(dtype=bool)
+    line[peat] = "peat extraction"
+    line[rewetted] = "rewetted wetlands"
+    line[wet & ~peat & ~rewetted] = "other wetlands"
+    return line
+
+
+def _on_basis(rows: pd.DataFrame, mass_ratios: str) -> np.ndarray:
+    """Each row's emission on the mass basis of its pathway's implied factor [t of that basis]."""
+    out = np.empty(len(rows))
+    for pathway, (basis, _, _) in IEF_BASIS.items():
+        at = (rows["pathway"] == pathway).to_numpy(dtype=bool)
+        if not at.any():
+            continue
+        gas = GAS_OF_PATHWAY[pathway]
+        same = (rows["emission_basis"].to_numpy(dtype=object)[at] == f"t {basis}")
+        converted = rows["emission_t"].to_numpy(dtype=float)[at] * basis_ratio(gas, basis, mass_ratios)
+        out[at] = np.where(same, rows["emission_basis_t"].to_numpy(dtype=float)[at], converted)
+    return out
+
+
+def organic_soils_table(emissions: pd.DataFrame, categories: pd.DataFrame, mass_ratios: str,
+                        findings=()) -> pd.DataFrame:
+    """Organic soils by land category, year, line, soil status, climate zone and nutrient status."""
+    names = dict(zip(categories["category_code"], categories["category_name"]))
+    soil = emissions["pathway"].isin([*SOIL_PATHWAYS, "fire_co2"]).to_numpy(dtype=bool)
+    cols = ["year", "land_category_code", "land_use", "subtype", "soil_status", "climate_zone", "nutrient_status",
+            "pathway", "area_ha", "area_basis_ha", "emission_t", "emission_basis", "emission_basis_t",
+            "notation_key", "category_code"]
+    rows = emissions.loc[soil, cols].copy()
+    rows["land_category_name"] = rows["land_category_code"].map(names).fillna("")
+    rows["line"] = _line(rows).to_numpy()
+    for key in ("soil_status", "climate_zone", "nutrient_status"):
+        rows[key] = rows[key].astype(object).fillna("")
+    keys = [*LINE_KEYS, "land_category_name"]
+    if rows.empty:
+        return pd.DataFrame(columns=ORGANIC_SOILS_COLUMNS)
+    # Area: every stratum row has an on-site CO2 row (estimate or notation key), counted once.
+    # A line with a fire on a stratum that has no activity row of its own is a line too (with no area).
+    every_line = rows.groupby(keys, sort=True, dropna=False).size().index
+    onsite = rows[rows["pathway"] == "co2_onsite"]
+    table = (onsite.groupby(keys, sort=True, dropna=False)["area_ha"].sum().div(1000.0).rename("area_kha")
+             .reindex(every_line, fill_value=0.0).to_frame())
+    est = rows[(rows["notation_key"] == "").to_numpy(dtype=bool)].copy()
+    est["basis_t"] = _on_basis(est, mass_ratios)
+    for pathway, (_, to_unit, _) in IEF_BASIS.items():
+        part = est[est["pathway"] == pathway]
+        sums = part.groupby(keys, dropna=False)[["basis_t", "area_basis_ha"]].sum().reindex(table.index)
+        area = sums["area_basis_ha"].to_numpy(dtype=float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ief = np.where(area > 0, sums["basis_t"].to_numpy(dtype=float) * to_unit / area, np.nan)
+        table[f"ief_{pathway}"] = ief
+
+    def kt(pathways) -> pd.Series:
+        part = est[est["pathway"].isin(pathways)]
+        return part.groupby(keys, dropna=False)["emission_t"].sum().div(1000.0).reindex(table.index)
+
+    table["co2_soil_kt"] = kt(["co2_onsite", "co2_doc"])
+    table["co2_fire_kt"] = kt(["fire_co2"])
+    table["ch4_kt"] = kt(["ch4_soil", "ch4_ditch"])
+    table["n2o_kt"] = kt(["n2o_soil"])
+    n2o = est[est["pathway"] == "n2o_soil"]
+    table["n2o_reported_under"] = (n2o.groupby(keys, dropna=False)["category_code"]
+                                   .agg(lambda s: ", ".join(sorted(set(s)))).reindex(table.index).fillna(""))
+    table = table.reset_index()
+    table["qaqc_id"] = IEF_CHECK + " " + table["land_category_code"] + " " + table["year"].astype(str)
+    counts = _finding_counts(findings)
+    table["qaqc_findings"] = [counts.get((c, int(y)), 0) for c, y in zip(table["land_category_code"], table["year"])]
+    order = {c: i for i, c in enumerate(categories["category_code"])}
+    table["_o"] = table["land_category_code"].map(order)
+    table = table.sort_values(["year", "_o", "line", "soil_status", "climate_zone", "nutrient_status"], kind="stable")
+    return table[ORGANIC_SOILS_COLUMNS].reset_index(drop=True)
+
+
+def _finding_counts(findings) -> dict[tuple[str, int], int]:
+    """Findings of the implied-emission-factor check per (category, year): its messages open with 'code gas year:'."""
+    counts: dict[tuple[str, int], int] = {}
+    for f in findings:
+        if f.check != IEF_CHECK:
+            continue
+        head = f.message.split(":", 1)[0].split()
+        if len(head) == 3 and head[2].isdigit():
+            key = (head[0], int(head[2]))
+            counts[key] = counts.get(key, 0) + 1
+    return counts
+
+
+def _trend(first, last) -> float:
+    """Change since the base year [%]; blank when the base year is zero or not a number."""
+    if not isinstance(first, (int, float)) or not isinstance(last, (int, float)):
+        return np.nan
+    if np.isnan(first) or np.isnan(last) or first == 0:
+        return np.nan
+    return (last - first) / abs(first) * 100.0
+
+
+def gas_series(categories: pd.DataFrame, gwp: dict, years) -> pd.DataFrame:
+    """Each gas in kt and kt CO2-eq, and the total in kt CO2-eq, per year (wide) with the trend [%]."""
+    est = categories[categories["emission_t"].notna()]
+    cols = [str(y) for y in years]
+    rows = []
+    gases = [g for g in ("CO2", "CH4", "N2O", "CO") if g in set(categories["gas"])]
+    kt = est.groupby(["gas", "year"])["emission_t"].sum().div(1000.0)
+    eq = est.groupby(["gas", "year"])["co2eq_t"].sum(min_count=1).div(1000.0)
+    for gas in gases:
+        values = [float(kt.get((gas, y), 0.0)) for y in years]
+        rows.append({"quantity": gas, "unit": f"kt {gas}", **dict(zip(cols, values))})
+    total = np.zeros(len(years))
+    for gas in gases:
+        if gas not in gwp:
+            continue
+        values = np.array([eq.get((gas, y), 0.0) for y in years], dtype=float)
+        values = np.nan_to_num(values)
+        total += values
+        rows.append({"quantity": gas, "unit": "kt CO2-eq", **dict(zip(cols, values.tolist()))})
+    rows.append({"quantity": "Total", "unit": "kt CO2-eq", **dict(zip(cols, total.tolist()))})
+    frame = pd.DataFrame(rows, columns=["quantity", "unit", *cols])
+    frame["trend_pct"] = [_trend(r[cols[0]], r[cols[-1]]) for r in frame.to_dict("records")]
+    return frame
+
+
+def category_series(categories: pd.DataFrame, years) -> pd.DataFrame:
+    """Each category and gas in kt of gas per year (a notation key where there is no number), a total row
+    per gas, and the trend since the base year [%]."""
+    cols = [str(y) for y in years]
+    cats = categories.copy()
+    cats["cell"] = [k if k else v / 1000.0 for v, k in zip(cats["emission_t"], cats["notation_key"])]
+    wide = cats.pivot_table(index=["category_code", "category_name", "gas"], columns="year", values="cell",
+                            aggfunc="first", sort=False)
+    wide = wide.reindex(columns=list(years))
+    wide.columns = cols
+    wide = wide.reset_index()
+    wide.insert(3, "unit", "kt " + wide["gas"])
+    totals = []
+    for gas in [g for g in ("CO2", "CH4", "N2O", "CO") if g in set(cats["gas"])]:
+        part = cats[(cats["gas"] == gas) & cats["emission_t"].notna()]
+        sums = part.groupby("year")["emission_t"].sum().div(1000.0)
+        totals.append({"category_code": "Total", "category_name": "All categories", "gas": gas, "unit": f"kt {gas}",
+                       **{c: float(sums.get(y, 0.0)) for c, y in zip(cols, years)}})
+    frame = pd.concat([wide, pd.DataFrame(totals, columns=wide.columns)], ignore_index=True)
+    frame["trend_pct"] = [_trend(r[cols[0]], r[cols[-1]]) for r in frame.to_dict("records")]
+    return frame
