@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from . import __version__
+from .allocation_schemes import with_allocation
 from .activity import load_activity, load_fires, load_overrides, load_review, load_review_log, load_surrogates
 from .categories import allocate, category_table
 from .engine import compute
@@ -102,7 +103,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     """
     if not isinstance(settings, Settings):
         settings = load_settings(settings, setting_overrides or None)
-    library = load_library()
+    library = with_allocation(load_library(), settings.allocation)
     log = FindingLog()
     if settings.factor_set == "ipcc2006" and not settings.ipcc2006_temperate:
         log.add("error", "settings", "factor_set ipcc2006 needs method.ipcc2006_temperate (Tables 5.6 and 6.3 "

@@ -56,7 +56,9 @@ from .factors import QUANTITIES, unit_kind_ok
 from .readers import MAX_LISTED
 from .units import basis_ratio, parse_unit, tonnes_of_gas_per_unit
 
-LAND_SECTOR_PREFIX = "3.B"  # 2006 IPCC Guidelines category 3.B Land: "the land sector" of the insignificance rule
+# 2006 IPCC Guidelines category 3.B Land, or sector 4 of the transparency framework's tables (allocation = "etf"):
+# "the land sector" of the insignificance rule
+LAND_SECTOR_PREFIX = ("3.B", "4.", "4(")
 EVIDENCE = ("measured", "mapped", "statistics", "assumed")
 FINDING_COLUMNS = ["severity", "check", "file", "sheet", "row", "column", "message", "found", "expected"]
 # A stratum as the area checks follow it through time: its land, without the conversion class, so that land

@@ -26,7 +26,9 @@ FINGERPRINTS = [
     ("reporting_categories.csv", 18, 5, None, "5e99e555e12484e1b71df1435db9ea07cd200042ddb96f87f89325f1797bb645"),
     ("rewetted_ipcc2013ws.csv", 13, 19, 527.21, "2d0dd3f0216cef86b883531ef90a762c6846f1a14ee11537c71ee838553176fe"),
     ("climate_response_ar5.csv", 28, 13, None, "8ab480c7aaa9052a61280ca1b36f94974b4e9b836ee49df1ffc201eddc9a72eb"),
-    ("sources.csv", 19, 5, None, "2088d399e8df1998cc6afab6888c5a7e3bf3f93bf1353a1fb0e7e5e404d6e65f"),
+    ("sources.csv", 21, 5, None, "c93f2bf8a8ddd616db66e6afde1dc71b3d0db1ffc56b49e19660b273ddafdc4f"),
+    ("reporting_allocation_etf.csv", 62, 8, None, "d92d577a452c37a196e54bd3287c59a2faebb15f3727f93a7fcf2d4de1a44c92"),
+    ("reporting_categories_etf.csv", 27, 6, None, "88bb3604afc18d217ad79b96c9b60b4cc02f845861ea00af30a8bfa0c7856771"),
 ]
 
 
