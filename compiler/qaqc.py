@@ -338,8 +338,12 @@ def _newly_converted(activity: pd.DataFrame, years) -> pd.DataFrame:
     The area reported as converted accumulates over the transition period, so the land converted in
     year t is read as the increase of each converted stratum's area from t-1 to t (its positive part).
     """
-    conv = activity[activity["remaining_or_converted"] == "converted"]
     keys = ["region", *LAND_KEYS[1:], "previous_land_use"]
+    if "conversion_year" in activity and activity["conversion_year"].notna().any():
+        from .transition import newly_converted
+
+        return newly_converted(activity, years, keys, _wide)  # by the conversion years given
+    conv = activity[activity["remaining_or_converted"] == "converted"]
     stock = _wide(conv, keys, "area_ha", years)
     return stock.diff(axis=1).clip(lower=0.0).fillna(0.0)
 
