@@ -41,7 +41,10 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
         from .submission import write_csvs
         from ..reporting_tables import reporting_tables
 
+        from ..methods_chapter import chapter, write_chapter
+
         reporting_tables(result)  # made once here, before the report process is forked
+        chapter(result)
         job = ReportJob.start(result, tmp) if report and not archive and _can_fork(parallel) else None
         try:
             write_csv(result.emissions, tmp / "emissions.csv", EXPORT_COLUMNS)
@@ -49,6 +52,7 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
             write_csv(result.gap_fills, tmp / "gap_filling.csv")
             package = datapackage(result.settings.name, EXPORT_COLUMNS, __version__)
             package["resources"].extend(write_csvs(result, tmp))  # the submission tables
+            write_chapter(result, tmp)  # methods_chapter.md and .docx
             write_datapackage(package, tmp / "datapackage.json")
             write_workbook(result, tmp / "inventory.xlsx")
         except BaseException:

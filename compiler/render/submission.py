@@ -132,5 +132,7 @@ def report_context(result) -> dict:
     shown = sorted({years[0], *years[::5], years[-1]}, key=years.index)
     gases = [{"quantity": r["quantity"], "unit": r["unit"], "values": [_num(r[y], 2) for y in shown],
               "trend": _num(r["trend_pct"], 1)} for r in g.to_dict("records")]
-    return {"latest": tables.latest_year, "soils": soils, "gas_years": shown, "gases": gases,
+    from ..methods_chapter import chapter, to_html
+
+    return {"methods": to_html(chapter(result)), "latest": tables.latest_year, "soils": soils, "gas_years": shown, "gases": gases,
             "files": list(CSV_FILES), "notation_keys": NOTATION_KEYS}
