@@ -239,9 +239,10 @@ def _recalculation_text(result, code) -> str:
     year = int(mine["year"].max())
     last = mine[mine["year"] == year]
     diff = last["difference_co2eq_t"].sum() / 1000.0
-    causes = [c for c in ("activity_change", "factor_change", "gwp_change", "factor_set_change",
-                          "shipped_value_change", "override_change", "strata_added", "strata_removed",
-                          "allocation_change") if c in last]
+    causes = [c for c in ("activity_change", "gwp_change", "factor_set_change", "shipped_value_change",
+                          "override_change", "strata_added", "strata_removed", "allocation_change") if c in last]
+    if "gwp_change" not in last:
+        causes.insert(1, "factor_change")
     detail = [(c, last[c].sum() / 1000.0) for c in causes]
     parts = _join(f"{c.replace('_', ' ')} {v:+,.3f}" for c, v in detail if abs(v) >= 0.0005)
     return (f"Against the previous submission ({result.recalculation['file']}), the estimate of {year} changes by "

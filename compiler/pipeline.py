@@ -148,7 +148,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
 
         previous = load_export(settings.previous_submission, settings.max_input_mb)
         current = emissions[emissions["notation_key"] == ""]
-        by_cell, by_row = compare(previous, current)
+        by_cell, by_row = compare(previous, current,
+                                  factor_sets=dict(zip(library.register["factor_id"], library.register["factor_set"])))
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
                          **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
     used_ids = set(emissions["factor_id"].unique()) | set(emissions["parameter_id"].unique())

@@ -188,7 +188,9 @@ def write_workbook(result, path: Path) -> None:
                notes=[f"Current submission minus the previous one ({result.recalculation['file']}), t and t CO2-eq. "
                       "dE = (A1 - A0) x EF0 (activity change) + A1 x (EF1 - EF0) (factor change, including GWP or "
                       "factor-set changes); strata added or removed; allocation change. The parts add up to "
-                      "difference_co2eq_t.",
+                      "difference_co2eq_t. factor_change is split into gwp_change (A1 x f0 x (GWP1 - GWP0), f in t "
+                      "of gas per ha), factor_set_change, shipped_value_change and override_change, which add up "
+                      "to it.",
                       f"Trend {base}-latest common year: previous {result.recalculation['previous_trend_pct']:.2f} %, "
                       f"current {result.recalculation['current_trend_pct']:.2f} %."])
     fills = result.gap_fills
