@@ -66,8 +66,8 @@ def _join(items) -> str:
 def reported_categories(result) -> list[str]:
     """Categories with a number in at least one year, in the order of the reporting table."""
     cats = result.categories
-    has = cats[cats["emission_t"].notna()]
-    return list(dict.fromkeys(c for c in cats["category_code"] if c in set(has["category_code"])))
+    has = set(cats.loc[cats["emission_t"].notna(), "category_code"])
+    return [c for c in dict.fromkeys(cats["category_code"].tolist()) if c in has]
 
 
 def chapter(result) -> list[Block]:
@@ -310,16 +310,15 @@ def write_docx(blocks: list[Block], path: Path, compile_date: str) -> None:
         elif b.kind == "p":
             document.add_paragraph(b.text)
         else:
-            table = document.add_table(rows=1 + len(b.rows), cols=len(b.header))
+            table = document.add_table(rows=1, cols=len(b.header))
             table.style = "Table Grid"
-            for j, text in enumerate(b.header):
-                cell = table.cell(0, j)
+            for cell, text in zip(table.rows[0].cells, b.header):
                 cell.text = text
                 for run in cell.paragraphs[0].runs:
                     run.bold = True
-            for i, row in enumerate(b.rows, start=1):
-                for j, text in enumerate(row):
-                    table.cell(i, j).text = text
+            for row in b.rows:  # a row's cells at a time (table.cell(i, j) walks the whole table each call)
+                for cell, text in zip(table.add_row().cells, row):
+                    cell.text = text
     buffer = io.BytesIO()
     document.save(buffer)
     _fixed_zip(buffer.getvalue(), stamp, path)
