@@ -217,7 +217,8 @@ def _qaqc_text(result, code) -> str:
             "emission factors against their strata, area balance, time-series steps and factor sources. ")
     if related:
         by_check = pd.Series([f.check for f in related]).value_counts().sort_index()
-        text += (f"{len(related)} findings concern this category ({_join(f'{n} {k}' for k, n in by_check.items())}); "
+        many = f"{len(related)} findings concern" if len(related) > 1 else "1 finding concerns"
+        text += (f"{many} this category ({_join(f'{n} {k}' for k, n in by_check.items())}); "
                  "for example: " + "; ".join(f.message for f in related[:FINDINGS_LISTED]) + ". ")
     else:
         text += "None of their findings concerns this category. "
@@ -258,12 +259,13 @@ def _improvement_text(result, code, used) -> str:
                        & kc.table["tier1_flag"].astype(bool)]
         gases = sorted(set(key["gas"]))
         if gases:
-            items.append(f"{code} is a key category for {_join(gases)} and rests on Tier 1 defaults: country-specific "
-                         "factors (Tier 2) are planned")
+            items.append(f"{code} is a key category for {_join(gases)} and rests on Tier 1 defaults: moving to "
+                         "country-specific factors (Tier 2 or higher) is good practice")
     unverified = used[used["verification"] == "from_memory"]
     if not unverified.empty:
-        items.append(f"{len(unverified)} factors in use are still to be checked against the published tables "
-                     f"({_join(sorted(unverified['factor_id']))})")
+        n = len(unverified)
+        items.append(f"{n} {'factors' if n > 1 else 'factor'} in use {'are' if n > 1 else 'is'} to be checked against "
+                     f"the published tables before official use ({_join(sorted(unverified['factor_id']))})")
     if not items:
         return "No improvement is planned for this category."
     return "; ".join(items) + "."

@@ -36,12 +36,10 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
     """
 
     def fill(tmp: Path) -> None:
-        from ..pipeline import EXPORT_COLUMNS
-
-        from .submission import write_csvs
-        from ..reporting_tables import reporting_tables
-
         from ..methods_chapter import chapter, write_chapter
+        from ..pipeline import EXPORT_COLUMNS
+        from ..reporting_tables import reporting_tables
+        from .submission import write_csvs
 
         reporting_tables(result)  # made once here, before the report process is forked
         chapter(result)
