@@ -68,3 +68,10 @@ def test_conversion_year_after_the_row_is_an_error(tmp_path):
     findings = check_inventory(write_inventory(tmp_path, rows))
     errors = [f for f in findings if f.severity == "error" and f.column == "conversion_year"]
     assert errors and errors[0].row == 2
+
+
+def test_conversion_year_that_is_not_a_year_names_file_row_and_column(tmp_path):
+    rows = [_grassland(2020, 100.0, "last spring")]
+    findings = check_inventory(write_inventory(tmp_path, rows))
+    errors = [f for f in findings if f.severity == "error" and f.column == "conversion_year"]
+    assert errors and errors[0].row == 2 and errors[0].file.endswith("activity.csv")
