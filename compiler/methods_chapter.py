@@ -33,6 +33,8 @@ SECTIONS = ("Description", "Methodological issues", "Uncertainty and time-series
             "Category-specific QA/QC", "Recalculations", "Planned improvements")
 FINDINGS_LISTED = 3
 TIER1 = "Tier 1 default"
+CHAPTER_COLUMNS = ["year", "region", "input_row", "land_use", "climate_zone", "soil_status", "nutrient_status",
+                   "drainage_depth", "subtype", "pathway", "equation", "factor_id", "activity_source"]
 
 
 @dataclass
@@ -144,18 +146,19 @@ def _category(result, tables, code: str, total_latest: float) -> list[Block]:
     blocks.append(Block("table", header=header, rows=rows))
 
     em = result.emissions
-    rows_c = em[(em["category_code"] == code) & (em["notation_key"] == "")]
+    mask = ((em["category_code"] == code) & (em["notation_key"] == "")).to_numpy(dtype=bool)
+    rows_c = em.loc[mask, CHAPTER_COLUMNS]  # the columns read below, not the whole results table
     blocks.append(Block("h3", SECTIONS[1]))
-    equations = sorted(e for e in set(rows_c["equation"]) if e)
-    pathways = sorted(set(rows_c["pathway"]))
-    land = sorted(set(rows_c["land_use"]))
+    equations = sorted(e for e in rows_c["equation"].unique() if e)
+    pathways = sorted(rows_c["pathway"].unique())
+    land = sorted(rows_c["land_use"].unique())
     text = (f"Estimated pathways: {_join(p.replace('_', ' ') for p in pathways)}, on "
             f"{_join(u.replace('_', ' ') for u in land)}. ")
     if equations:
         text += f"Equations: {_join(equations)}. "
     text += f"Allocated to {code} under the {SCHEME_NAMES.get(s.allocation, s.allocation)}."
     blocks.append(Block("p", text))
-    used = result.factors_used[result.factors_used["factor_id"].isin(set(rows_c["factor_id"]))]
+    used = result.factors_used[result.factors_used["factor_id"].isin(rows_c["factor_id"].unique())]
     if not used.empty:
         frows = [[r["factor_id"], f"{r['value']:g} {r['unit']}", r["tier"],
                   (f"{r['source_id']}, {r['table']}" if r["table"] else r["source_id"]) or r["citation"][:80]]

@@ -34,6 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from .matching import distinct_codes
 from .units import basis_ratio
 
 # pathway -> (mass basis of the implied factor, multiplier from t to the unit's mass, unit)
@@ -104,6 +105,9 @@ def reporting_tables(result) -> ReportingTables:
     return tables
 
 
+RAW_KEYS = ["year", "land_category_code", "land_use", "subtype", "soil_status", "climate_zone", "nutrient_status"]
+
+
 def _line(frame: pd.DataFrame) -> pd.Series:
     """Peat extraction and rewetted wetlands as lines of their own; any other stratum's line is its land category."""
     line = frame["land_category_name"].astype(object).copy()
@@ -116,64 +120,81 @@ def _line(frame: pd.DataFrame) -> pd.Series:
     return line
 
 
-def _on_basis(rows: pd.DataFrame, mass_ratios: str) -> np.ndarray:
-    """Each row's emission on the mass basis of its pathway's implied factor [t of that basis]."""
-    out = np.empty(len(rows))
-    for pathway, (basis, _, _) in IEF_BASIS.items():
-        at = (rows["pathway"] == pathway).to_numpy(dtype=bool)
+def _on_basis(pathway: np.ndarray, basis: np.ndarray, emission_t: np.ndarray, basis_t: np.ndarray,
+              mass_ratios: str) -> np.ndarray:
+    """Each row's emission on the mass basis of its pathway's implied factor [t of that basis] (0 elsewhere)."""
+    out = np.zeros(len(pathway))
+    for name, (target, _, _) in IEF_BASIS.items():
+        at = pathway == name
         if not at.any():
             continue
-        gas = GAS_OF_PATHWAY[pathway]
-        same = (rows["emission_basis"].to_numpy(dtype=object)[at] == f"t {basis}")
-        converted = rows["emission_t"].to_numpy(dtype=float)[at] * basis_ratio(gas, basis, mass_ratios)
-        out[at] = np.where(same, rows["emission_basis_t"].to_numpy(dtype=float)[at], converted)
+        ratio = basis_ratio(GAS_OF_PATHWAY[name], target, mass_ratios)
+        out[at] = np.where(basis[at] == f"t {target}", basis_t[at], emission_t[at] * ratio)
     return out
 
 
 def organic_soils_table(emissions: pd.DataFrame, categories: pd.DataFrame, mass_ratios: str,
                         findings=()) -> pd.DataFrame:
-    """Organic soils by land category, year, line, soil status, climate zone and nutrient status."""
+    """Organic soils by land category, year, line, soil status, climate zone and nutrient status.
+
+    The rows are numbered by their key combination once (:func:`compiler.matching.distinct_codes`) and
+    every measure summed per number by ``np.bincount``; the few combinations are then gathered into lines.
+    """
     names = dict(zip(categories["category_code"], categories["category_name"]))
     soil = emissions["pathway"].isin([*SOIL_PATHWAYS, "fire_co2"]).to_numpy(dtype=bool)
-    cols = ["year", "land_category_code", "land_use", "subtype", "soil_status", "climate_zone", "nutrient_status",
-            "pathway", "area_ha", "area_basis_ha", "emission_t", "emission_basis", "emission_basis_t",
-            "notation_key", "category_code"]
-    rows = emissions.loc[soil, cols].copy()
-    rows["land_category_name"] = rows["land_category_code"].map(names).fillna("")
-    rows["line"] = _line(rows).to_numpy()
-    for key in ("soil_status", "climate_zone", "nutrient_status"):
-        rows[key] = rows[key].astype(object).fillna("")
-    keys = [*LINE_KEYS, "land_category_name"]
-    if rows.empty:
+    if not soil.any():
         return pd.DataFrame(columns=ORGANIC_SOILS_COLUMNS)
+    rows = emissions.loc[soil, RAW_KEYS + ["pathway", "area_ha", "area_basis_ha", "emission_t", "emission_basis",
+                                          "emission_basis_t", "notation_key", "category_code"]]
+    codes, first = distinct_codes(rows, RAW_KEYS)
+    n = len(first)
+    pathway = rows["pathway"].to_numpy(dtype=object)
+    estimate = (rows["notation_key"] == "").to_numpy(dtype=bool)
+    emission_t = rows["emission_t"].to_numpy(dtype=float)
+    groups = rows[RAW_KEYS].iloc[first].reset_index(drop=True)
+
+    def total(weights: np.ndarray, mask: np.ndarray) -> np.ndarray:
+        return np.bincount(codes[mask], weights=weights[mask], minlength=n)
+
     # Area: every stratum row has an on-site CO2 row (estimate or notation key), counted once.
-    # A line with a fire on a stratum that has no activity row of its own is a line too (with no area).
-    every_line = rows.groupby(keys, sort=True, dropna=False).size().index
-    onsite = rows[rows["pathway"] == "co2_onsite"]
-    table = (onsite.groupby(keys, sort=True, dropna=False)["area_ha"].sum().div(1000.0).rename("area_kha")
-             .reindex(every_line, fill_value=0.0).to_frame())
-    est = rows[(rows["notation_key"] == "").to_numpy(dtype=bool)].copy()
-    est["basis_t"] = _on_basis(est, mass_ratios)
-    for pathway, (_, to_unit, _) in IEF_BASIS.items():
-        part = est[est["pathway"] == pathway]
-        sums = part.groupby(keys, dropna=False)[["basis_t", "area_basis_ha"]].sum().reindex(table.index)
-        area = sums["area_basis_ha"].to_numpy(dtype=float)
+    groups["area_ha"] = total(rows["area_ha"].to_numpy(dtype=float), pathway == "co2_onsite")
+    basis_t = _on_basis(pathway, rows["emission_basis"].to_numpy(dtype=object), emission_t,
+                        rows["emission_basis_t"].to_numpy(dtype=float), mass_ratios)
+    area_basis = rows["area_basis_ha"].to_numpy(dtype=float)
+    for name in SOIL_PATHWAYS:
+        at = estimate & (pathway == name)
+        groups[f"_e_{name}"] = total(basis_t, at)
+        groups[f"_a_{name}"] = total(area_basis, at)
+        groups[f"_n_{name}"] = np.bincount(codes[at], minlength=n)  # estimate rows behind the sums
+    measures = {"co2_soil_kt": ("co2_onsite", "co2_doc"), "co2_fire_kt": ("fire_co2",),
+                "ch4_kt": ("ch4_soil", "ch4_ditch"), "n2o_kt": ("n2o_soil",)}
+    for column, pathways in measures.items():
+        at = estimate & np.isin(pathway, pathways)
+        groups[column] = total(emission_t, at) / 1000.0
+        groups[f"_n_{column}"] = np.bincount(codes[at], minlength=n)
+    n2o = estimate & (pathway == "n2o_soil")
+    reported = np.full(n, "", dtype=object)
+    where = rows["category_code"].to_numpy(dtype=object)[n2o]
+    reported[codes[n2o][::-1]] = where[::-1]  # the category of the first N2O row of each combination
+    groups["n2o_reported_under"] = reported
+
+    groups["land_category_name"] = groups["land_category_code"].map(names).fillna("")
+    groups["line"] = _line(groups).to_numpy()
+    for key in ("soil_status", "climate_zone", "nutrient_status"):
+        groups[key] = groups[key].astype(object).fillna("")
+    keys = [*LINE_KEYS, "land_category_name"]
+    sums = [c for c in groups.columns if c.startswith("_") or c in ("area_ha", *measures)]
+    table = groups.groupby(keys, sort=True, dropna=False).agg(
+        **{c: (c, "sum") for c in sums},
+        n2o_reported_under=("n2o_reported_under", lambda v: ", ".join(sorted(set(v) - {""})))).reset_index()
+    table["area_kha"] = table["area_ha"] / 1000.0
+    for name, (_, to_unit, _) in IEF_BASIS.items():
+        area = table[f"_a_{name}"].to_numpy(dtype=float)
         with np.errstate(divide="ignore", invalid="ignore"):
-            ief = np.where(area > 0, sums["basis_t"].to_numpy(dtype=float) * to_unit / area, np.nan)
-        table[f"ief_{pathway}"] = ief
-
-    def kt(pathways) -> pd.Series:
-        part = est[est["pathway"].isin(pathways)]
-        return part.groupby(keys, dropna=False)["emission_t"].sum().div(1000.0).reindex(table.index)
-
-    table["co2_soil_kt"] = kt(["co2_onsite", "co2_doc"])
-    table["co2_fire_kt"] = kt(["fire_co2"])
-    table["ch4_kt"] = kt(["ch4_soil", "ch4_ditch"])
-    table["n2o_kt"] = kt(["n2o_soil"])
-    n2o = est[est["pathway"] == "n2o_soil"]
-    table["n2o_reported_under"] = (n2o.groupby(keys, dropna=False)["category_code"]
-                                   .agg(lambda s: ", ".join(sorted(set(s)))).reindex(table.index).fillna(""))
-    table = table.reset_index()
+            table[f"ief_{name}"] = np.where((area > 0) & (table[f"_n_{name}"] > 0),
+                                            table[f"_e_{name}"].to_numpy(dtype=float) * to_unit / area, np.nan)
+    for column in measures:  # blank where no estimate row lies behind the sum
+        table[column] = table[column].where(table[f"_n_{column}"] > 0)
     table["qaqc_id"] = IEF_CHECK + " " + table["land_category_code"] + " " + table["year"].astype(str)
     counts = _finding_counts(findings)
     table["qaqc_findings"] = [counts.get((c, int(y)), 0) for c, y in zip(table["land_category_code"], table["year"])]
