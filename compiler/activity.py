@@ -393,7 +393,9 @@ def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
     same = good[converted & (good["previous_land_use"] == good["land_use"])]
     check.rows("error", "conversion", "previous_land_use equals land_use on converted land", same,
                "previous_land_use", same["previous_land_use"], "another land use")
-    prev_on_remaining = good[~converted & (good["previous_land_use"] != "")]
+    # (a row past its transition period keeps its conversion_year and previous_land_use in the file: no warning)
+    dated = good["conversion_year"].notna() if "conversion_year" in good else False
+    prev_on_remaining = good[~converted & (good["previous_land_use"] != "") & ~dated]
     check.rows("warning", "conversion", "previous_land_use given on land marked remaining; ignored",
                prev_on_remaining, "previous_land_use", prev_on_remaining["previous_land_use"], "blank")
     frame.loc[~(frame["remaining_or_converted"] == "converted"), "previous_land_use"] = ""

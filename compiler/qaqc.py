@@ -822,6 +822,11 @@ def check_duplicated_strata(result, thresholds: QaqcThresholds) -> list[Finding]
     dup = em[em.duplicated(keys, keep=False)]
     if dup.empty:
         return []
+    from .transition import apart_by_conversion_year
+
+    dup = apart_by_conversion_year(result, dup, keys)  # parts of a stratum converted in different years
+    if dup.empty:
+        return []
     stratum_keys = [k for k in keys if k != "pathway"]
     groups = dup.groupby(stratum_keys + ["input_file"], sort=True, as_index=False).agg(
         rows=("input_row", lambda s: ", ".join(map(str, sorted(set(s))))), first=("input_row", _first_input_row),

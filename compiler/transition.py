@@ -15,6 +15,8 @@ land leaving the transition period would mask.
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 
@@ -60,3 +62,20 @@ def newly_converted(activity: pd.DataFrame, years, keys: list[str], wide) -> pd.
     at_conversion = conv[dated & (conv["year"] == conv[COLUMN])]
     exact = wide(at_conversion, keys, "area_ha", years)
     return undated.add(exact, fill_value=0.0)
+
+
+def apart_by_conversion_year(result, rows: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+    """``rows`` (results rows sharing ``keys``) less those told apart by the conversion year of their activity row.
+
+    Rows of one stratum converted in different years are separate parts of it, also once they are
+    all "remaining"; rows with the same conversion year (or none) are still duplicates.
+    """
+    act = result.activity
+    if COLUMN not in act or not act[COLUMN].notna().any() or "_row" not in act:
+        return rows
+    activity_file = Path(result.settings.activity).name
+    years = dict(zip(act["_row"].to_numpy(), act[COLUMN].to_numpy(dtype=float)))
+    from_activity = (rows["input_file"] == activity_file).to_numpy(dtype=bool)
+    cohort = np.where(from_activity, rows["input_row"].map(years).to_numpy(dtype=float), np.nan)
+    marked = rows.assign(_cohort=cohort)
+    return rows[marked.duplicated([*keys, "_cohort"], keep=False).to_numpy()]

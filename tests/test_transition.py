@@ -75,3 +75,16 @@ def test_conversion_year_that_is_not_a_year_names_file_row_and_column(tmp_path):
     findings = check_inventory(write_inventory(tmp_path, rows))
     errors = [f for f in findings if f.severity == "error" and f.column == "conversion_year"]
     assert errors and errors[0].row == 2 and errors[0].file.endswith("activity.csv")
+
+
+def test_cohorts_past_their_transition_are_parts_of_the_remaining_stratum(tmp_path):
+    # Two cohorts converted in 1990 and 1995 are both remaining by 2018 and stand beside the undated
+    # remaining row of the same stratum: three parts of one stratum, not duplicates, and no warning
+    # about the previous land use they keep in the file.
+    rows = ([_grassland(y, 1000.0) for y in (2018, 2019)] + [_grassland(y, 100.0, 1990) for y in (2018, 2019)]
+            + [_grassland(y, 50.0, 1995) for y in (2018, 2019)])
+    result = compile_inventory(write_inventory(tmp_path, rows, first=2018, last=2019), iterations=200)
+    assert not [f for f in result.finding_list if f.check in ("duplicate", "duplicated_strata", "conversion")]
+    cats = result.categories
+    area = cats[(cats["category_code"] == "3.B.3.a") & (cats["gas"] == "CO2")].set_index("year")["area_ha"]
+    assert area.to_dict() == {2018: 1150.0, 2019: 1150.0}
