@@ -43,8 +43,9 @@ def test_demo_peat_extraction_and_rewetted_wetlands_are_lines_of_their_own(demo_
 
 
 def test_implied_factor_equals_emissions_over_area_for_a_hand_computed_stratum(tmp_path):
-    # Implied emission factor IEF = E / A (2006 IPCC Guidelines Vol. 1 Ch. 8, the IEF of the reporting
-    # tables; common practice). Two temperate nutrient-rich drained grassland strata in one line:
+    # Implied emission factor IEF = E / A: emissions on the factor's basis over the area the factor
+    # multiplies, as the reporting tables' implied emission factors are defined (2006 IPCC Guidelines
+    # Vol. 1 Ch. 6 and 8, from memory). Two temperate nutrient-rich drained grassland strata in one line:
     # 100 ha deep-drained and 300 ha shallow-drained. On-site CO2 by WS2013 Eq. 2.3 (E = A x EF):
     # EF 6.1 and 3.6 t CO2-C/ha (WS2013 Table 2.1, as shipped) -> IEF = (100 x 6.1 + 300 x 3.6) / 400
     # = 1690 / 400 = 4.225 t CO2-C/ha. Soil CH4 (WS2013 Eq. 2.6, on the ditch-free area A x (1 - Frac_ditch)
