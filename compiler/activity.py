@@ -86,6 +86,7 @@ ACTIVITY_COLUMNS = [
     Column("previous_land_use", "term", False, "previous_land_use"),
     Column("area_uncertainty_pct", "percent"),
     Column("evidence", "term", False, "evidence"),
+    Column("conversion_year", "year"),  # optional: sets remaining_or_converted by the transition period
 ]
 FIRE_COLUMNS = [
     Column("year", "year", True),
@@ -435,6 +436,9 @@ def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
     if frame.empty:
         return frame
     check = _Checker(log, str(settings.activity), sheet)
+    from .transition import apply_transition
+
+    apply_transition(frame, settings.transition_years, check)
     good = frame[~frame["_bad"]]
     converted = good["remaining_or_converted"] == "converted"
     no_prev = good[converted & (good["previous_land_use"] == "")]
@@ -443,7 +447,9 @@ def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
     same = good[converted & (good["previous_land_use"] == good["land_use"])]
     check.rows("error", "conversion", "previous_land_use equals land_use on converted land", same,
                "previous_land_use", same["previous_land_use"], "another land use")
-    prev_on_remaining = good[~converted & (good["previous_land_use"] != "")]
+    # (a row past its transition period keeps its conversion_year and previous_land_use in the file: no warning)
+    dated = good["conversion_year"].notna() if "conversion_year" in good else False
+    prev_on_remaining = good[~converted & (good["previous_land_use"] != "") & ~dated]
     check.rows("warning", "conversion", "previous_land_use given on land marked remaining; ignored",
                prev_on_remaining, "previous_land_use", prev_on_remaining["previous_land_use"], "blank")
     frame.loc[~(frame["remaining_or_converted"] == "converted"), "previous_land_use"] = ""
@@ -459,10 +465,12 @@ def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
 
 def _check_duplicates(keys: pd.DataFrame, check: _Checker) -> None:
     """One row per year, region and stratum; says whether the repeated rows are copies or conflict."""
-    dup = keys[keys.duplicated(STRATUM_KEYS, keep=False)]
+    # Rows of one stratum converted in different years (conversion_year) are separate parts of it.
+    stratum_keys = STRATUM_KEYS + (["conversion_year"] if "conversion_year" in keys else [])
+    dup = keys[keys.duplicated(stratum_keys, keep=False)]
     if dup.empty:
         return
-    group = dup.groupby(STRATUM_KEYS, dropna=False, sort=False)
+    group = dup.groupby(stratum_keys, dropna=False, sort=False)
     gid = group.ngroup()
     copies = group["area_ha"].transform("nunique") <= 1
     found = pd.Series("", index=dup.index, dtype=object)

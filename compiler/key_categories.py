@@ -38,7 +38,18 @@ from .readers import ROW, read_table
 
 THRESHOLD_APPROACH1 = 0.95  # Vol. 1 Ch. 4, Approach 1
 THRESHOLD_APPROACH2 = 0.90  # Vol. 1 Ch. 4, Approach 2
-LAND_SECTOR_PREFIX = "3.B"  # 2006 IPCC Guidelines category 3.B Land; excluded in the run without the land sector
+# 2006 IPCC Guidelines category 3.B Land, or sector 4 of the transparency framework's tables (allocation = "etf");
+# excluded in the run without the land sector
+LAND_SECTOR_PREFIX = ("3.B", "4.", "4(")
+
+
+def _land_prefixes_shown(frame) -> list[str]:
+    """The land-sector code patterns that occur among the assessed categories (3.B.* where none does)."""
+    patterns = {"3.B": "3.B.*", "4.": "4.*", "4(": "4(II).*, 4(V).*"}
+    shown = [patterns[p] for p in LAND_SECTOR_PREFIX if frame["category_code"].str.startswith(p).any()]
+    return shown or [patterns["3.B"]]
+
+
 TIER1 = "Tier 1 default"
 TIER1_MESSAGE = "key category on Tier 1 defaults: a higher tier is good practice"
 ASSESSMENTS = {
@@ -384,7 +395,7 @@ def key_categories(result, uncertainty=None, national_totals: pd.DataFrame | Non
         land = frame["category_code"].str.startswith(LAND_SECTOR_PREFIX)
         runs = [(RUN_WITH_LAND, frame), (RUN_WITHOUT_LAND, frame[~land])]
         notes.append(f"Assessed against the national total (national_totals), {RUN_WITH_LAND} and {RUN_WITHOUT_LAND} "
-                     f"(categories {LAND_SECTOR_PREFIX}.*).")
+                     f"(categories {', '.join(_land_prefixes_shown(frame))}).")
     else:
         runs = [(RUN_INVENTORY, frame)]
         notes.append("national_totals not given: the categories of this inventory were assessed among themselves, "

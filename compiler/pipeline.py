@@ -19,6 +19,7 @@ from . import __version__, offsite_peat
 from .activity import (check_fires_within_strata, load_activity, load_fires, load_overrides, load_review,
                        load_review_log, load_surrogates)
 from .aggregate import Aggregates, aggregate
+from .allocation_schemes import with_allocation
 from .categories import allocate, category_table
 from .engine import compute
 from .errors import Finding, FindingLog, InputError, QaqcError
@@ -95,7 +96,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     """
     if not isinstance(settings, Settings):
         settings = load_settings(settings, setting_overrides or None)
-    library = load_library()
+    library = with_allocation(load_library(), settings.allocation)
     log = FindingLog()
     if settings.factor_set == "ipcc2006" and not settings.ipcc2006_temperate:
         log.add("error", "settings", "factor_set ipcc2006 needs method.ipcc2006_temperate (Tables 5.6 and 6.3 "
@@ -151,7 +152,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
         from .recalculations import compare, trend_effect
 
         current = emissions[emissions["notation_key"] == ""]
-        by_cell, by_row = compare(previous, current)
+        by_cell, by_row = compare(previous, current,
+                                  factor_sets=dict(zip(library.register["factor_id"], library.register["factor_set"])))
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
                          **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
     used_ids = set(emissions["factor_id"].unique()) | set(emissions["parameter_id"].unique())

@@ -60,7 +60,9 @@ from .offsite_peat import OFFSITE_PATHWAY
 from .readers import MAX_LISTED
 from .units import basis_ratio, parse_unit, tonnes_of_gas_per_unit
 
-LAND_SECTOR_PREFIX = "3.B"  # 2006 IPCC Guidelines category 3.B Land: "the land sector" of the insignificance rule
+# 2006 IPCC Guidelines category 3.B Land, or sector 4 of the transparency framework's tables (allocation = "etf"):
+# "the land sector" of the insignificance rule
+LAND_SECTOR_PREFIX = ("3.B", "4.", "4(")
 EVIDENCE = ("measured", "mapped", "statistics", "assumed")
 # The area checks follow a stratum through time as LAND_KEYS: its land, without the conversion class, so
 # that land passing from "converted" to "remaining" after the transition period does not read as a jump.
@@ -343,8 +345,12 @@ def _newly_converted(activity: pd.DataFrame, years) -> pd.DataFrame:
     The area reported as converted accumulates over the transition period, so the land converted in
     year t is read as the increase of each converted stratum's area from t-1 to t (its positive part).
     """
-    conv = activity[activity["remaining_or_converted"] == "converted"]
     keys = ["region", *LAND_KEYS[1:], "previous_land_use"]
+    if "conversion_year" in activity and activity["conversion_year"].notna().any():
+        from .transition import newly_converted
+
+        return newly_converted(activity, years, keys, _wide)  # by the conversion years given
+    conv = activity[activity["remaining_or_converted"] == "converted"]
     stock = _wide(conv, keys, "area_ha", years)
     return stock.diff(axis=1).clip(lower=0.0).fillna(0.0)
 
@@ -838,6 +844,11 @@ def check_duplicated_strata(result, thresholds: QaqcThresholds) -> list[Finding]
     em = em[(em["pathway"] != OFFSITE_PATHWAY).to_numpy(dtype=bool)]
     keys = ["year", *ROW_SERIES_KEYS]
     dup = em[em.duplicated(keys, keep=False)]
+    if dup.empty:
+        return []
+    from .transition import apart_by_conversion_year
+
+    dup = apart_by_conversion_year(result, dup, keys)  # parts of a stratum converted in different years
     if dup.empty:
         return []
     stratum_keys = [k for k in keys if k != "pathway"]

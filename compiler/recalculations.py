@@ -10,7 +10,20 @@ conversion and the GWP):
 
 which equals E1 - E0 exactly. For the off-site CO2 of extracted peat (pathway
 ``co2_offsite``) the activity A is the tonnes of air-dry peat (the row's
-``parameter_value``), as the row has no area. Rows only in the current export are "strata
+``parameter_value``), as the row has no area. The factor change is split further. With g the
+GWP of the row's gas in each submission (CO2-eq / t of gas) and f = E / A in t
+of gas per ha:
+
+    A1 x (EF1 - EF0) = A1 x f0 x (g1 - g0)  +  A1 x g1 x (f1 - f0)
+                       GWP change              factor change in t of gas
+
+and the factor change in t of gas goes whole to one cause per row: an override
+added, changed or removed (either side's factor differs from the default it
+replaced); a factor-set change (both defaults, of different factor sets); else
+a shipped-factor value change (the same default row with another value, or
+another row of the same set, or another unit conversion). The four parts add
+up to the factor change (the last one is its remainder, so the sum is exact).
+Rows only in the current export are "strata
 added", rows only in the previous "strata removed"; a matched row whose
 category changed moves its whole emission: -E0 from the old category and +E1
 to the new, both "allocation". The parts add up to the total difference of
@@ -31,6 +44,8 @@ from .schema import ROW_KEYS
 
 MATCH_KEYS = ROW_KEYS  # rows of two exports are matched on every key of a result row (compiler.schema)
 PARTS = ["activity_change", "factor_change", "strata_added", "strata_removed", "allocation_change"]
+# factor_change split by cause; the four add up to factor_change
+FACTOR_PARTS = ["gwp_change", "factor_set_change", "shipped_value_change", "override_change"]
 NEEDED = set(MATCH_KEYS) | {"category_code", "area_ha", "emission_t", "co2eq_t", "notation_key", "factor_id"}
 
 
@@ -128,19 +143,64 @@ def _with_activity(frame: pd.DataFrame) -> pd.DataFrame:
     return frame
 
 
-def compare(previous: pd.DataFrame, current: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Return (by_cell, by_row): differences by category, gas and year with their causes, and per row."""
+def _gwp_by_gas(frame: pd.DataFrame) -> dict[str, float]:
+    """The GWP each gas carried in an export: CO2-eq / t of gas of its rows (0 for a gas without one)."""
+    rows = frame[(frame["emission_t"] != 0) & frame["emission_t"].notna()]
+    ratio = (rows["co2eq_t"] / rows["emission_t"]).fillna(0.0)
+    return ratio.groupby(rows["gas"]).median().to_dict()
+
+
+def _factor_set(factor_id: pd.Series, factor_sets: dict | None) -> pd.Series:
+    """Factor set of each factor id: from the register where known, else the id's prefix (ws13-, gl06-)."""
+    prefix = factor_id.fillna("").str.split("-", n=1).str[0]
+    if not factor_sets:
+        return prefix
+    return factor_id.map(factor_sets).fillna(prefix)
+
+
+def _split_factor_change(rows: pd.DataFrame, factor: np.ndarray, same_cat: np.ndarray, a0, a1, g0: dict,
+                         g1: dict, factor_sets: dict | None) -> None:
+    """Add the FACTOR_PARTS columns to ``rows`` (matched rows of one category); they add up to ``factor``."""
+    gas0 = rows["gas"].map(g0).fillna(0.0).to_numpy(dtype=float)
+    gas1 = rows["gas"].map(g1).fillna(0.0).to_numpy(dtype=float)
+    t0 = rows["emission_t_0"].fillna(0.0).to_numpy(dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        scaled = np.where(a0 != 0, a1 * t0 / np.where(a0 != 0, a0, 1.0), t0)  # A1 x f0 (E0 where A0 = 0)
+    gwp = np.where(same_cat, scaled * (gas1 - gas0), 0.0)
+    rest = factor - gwp
+    f0, f1 = rows["factor_id_0"].fillna(""), rows["factor_id_1"].fillna("")
+    d0 = rows["default_factor_id_0"].fillna("") if "default_factor_id_0" in rows else f0
+    d1 = rows["default_factor_id_1"].fillna("") if "default_factor_id_1" in rows else f1
+    override = (((d0 != "") & (f0 != d0)) | ((d1 != "") & (f1 != d1))).to_numpy()
+    other_set = (_factor_set(f0, factor_sets) != _factor_set(f1, factor_sets)).to_numpy() & ~override
+    rows["gwp_change"] = gwp
+    rows["override_change"] = np.where(override, rest, 0.0)
+    rows["factor_set_change"] = np.where(other_set, rest, 0.0)
+    # The remainder: exact, so that the four parts add up to the factor change row by row.
+    rows["shipped_value_change"] = factor - gwp - rows["override_change"].to_numpy() - rows["factor_set_change"].to_numpy()
+
+
+def compare(previous: pd.DataFrame, current: pd.DataFrame,
+            factor_sets: dict | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Return (by_cell, by_row): differences by category, gas and year with their causes, and per row.
+
+    ``factor_sets`` (factor id -> factor set, from the register) tells factor-set changes apart.
+    """
     # Only the years both submissions cover: a year new in the current one is not a recalculation.
     common = sorted(set(previous["year"]) & set(current["year"]))
     previous = _with_activity(previous[previous["year"].isin(common)])
     current = _with_activity(current[current["year"].isin(common)])
-    cols = MATCH_KEYS + ["category_code", "area_ha", "emission_t", "co2eq_t", "factor_id"]
-    prev = previous[cols].groupby(MATCH_KEYS + ["category_code"], as_index=False, dropna=False).agg(
-        area_ha=("area_ha", "sum"), emission_t=("emission_t", "sum"), co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)),
-        factor_id=("factor_id", "first"))
-    cur = current[cols].groupby(MATCH_KEYS + ["category_code"], as_index=False, dropna=False).agg(
-        area_ha=("area_ha", "sum"), emission_t=("emission_t", "sum"), co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)),
-        factor_id=("factor_id", "first"))
+    g0, g1 = _gwp_by_gas(previous), _gwp_by_gas(current)
+
+    def grouped(frame):
+        extra = ["default_factor_id"] if "default_factor_id" in frame else []
+        cols = MATCH_KEYS + ["category_code", "area_ha", "emission_t", "co2eq_t", "factor_id", *extra]
+        return frame[cols].groupby(MATCH_KEYS + ["category_code"], as_index=False, dropna=False).agg(
+            area_ha=("area_ha", "sum"), emission_t=("emission_t", "sum"),
+            co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)), factor_id=("factor_id", "first"),
+            **({"default_factor_id": ("default_factor_id", "first")} if extra else {}))
+
+    prev, cur = grouped(previous), grouped(current)
     rows = prev.merge(cur, on=MATCH_KEYS, how="outer", suffixes=("_0", "_1"), indicator=True)
     both = rows["_merge"] == "both"
     e0 = rows["co2eq_t_0"].fillna(0.0).to_numpy()
@@ -158,6 +218,7 @@ def compare(previous: pd.DataFrame, current: pd.DataFrame) -> tuple[pd.DataFrame
     rows["strata_added"] = np.where(rows["_merge"] == "right_only", e1, 0.0)
     rows["strata_removed"] = np.where(rows["_merge"] == "left_only", -e0, 0.0)
     rows["factor_changed"] = both & (rows["factor_id_0"] != rows["factor_id_1"])
+    _split_factor_change(rows, factor, same_cat.to_numpy(), a0, a1, g0, g1, factor_sets)
 
     # Per category: current-side parts in the current category, previous-side parts in the old one.
     cur_side = rows.assign(category_code=rows["category_code_1"])
@@ -173,14 +234,18 @@ def compare(previous: pd.DataFrame, current: pd.DataFrame) -> tuple[pd.DataFrame
     new_parts = pd.DataFrame({
         "category_code": cur_side["category_code"], "gas": cur_side["gas"], "year": cur_side["year"],
         "activity_change": cur_side["activity_change"], "factor_change": cur_side["factor_change"],
+        **{part: cur_side[part] for part in FACTOR_PARTS},
         "strata_added": cur_side["strata_added"], "allocation_change": cur_side["allocation_change"],
         "current_co2eq_t": e1[cur_side.index], "current_t": cur_side["emission_t_1"].fillna(0.0),
     })
     keys = ["category_code", "gas", "year"]
     cell = pd.concat([old_parts, new_parts], ignore_index=True).groupby(keys, as_index=False).sum(numeric_only=True)
-    for col in PARTS + ["previous_co2eq_t", "current_co2eq_t", "previous_t", "current_t"]:
+    for col in PARTS + FACTOR_PARTS + ["previous_co2eq_t", "current_co2eq_t", "previous_t", "current_t"]:
         if col not in cell:
             cell[col] = 0.0
+    # The remainder again per cell, so that the cell's four factor parts add up to its factor change.
+    cell["shipped_value_change"] = (cell["factor_change"] - cell["gwp_change"] - cell["factor_set_change"]
+                                    - cell["override_change"])
     cell["difference_co2eq_t"] = cell["current_co2eq_t"] - cell["previous_co2eq_t"]
     cell["difference_t"] = cell["current_t"] - cell["previous_t"]
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -188,7 +253,8 @@ def compare(previous: pd.DataFrame, current: pd.DataFrame) -> tuple[pd.DataFrame
                                           cell["difference_co2eq_t"] / cell["previous_co2eq_t"].abs() * 100, np.nan)
     cell["parts_sum_co2eq_t"] = cell[PARTS].sum(axis=1)
     cell = cell[["category_code", "gas", "year", "previous_t", "current_t", "difference_t", "previous_co2eq_t",
-                 "current_co2eq_t", "difference_co2eq_t", "difference_pct", *PARTS, "parts_sum_co2eq_t"]]
+                 "current_co2eq_t", "difference_co2eq_t", "difference_pct", *PARTS, "parts_sum_co2eq_t",
+                 *FACTOR_PARTS]]
     rows = rows.drop(columns="_merge")
     return cell.sort_values(keys).reset_index(drop=True), rows
 

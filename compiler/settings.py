@@ -28,6 +28,7 @@ PATH_KEYS = ("activity", "fires", "overrides", "factor_review", "national_totals
              "previous_submission", "review_log", "surrogates", "peat_production")
 GWP_SETS = ("AR5", "AR4", "AR6", "SAR")
 IPCC2006_TEMPERATE = ("cold_temperate", "warm_temperate")
+ALLOCATION_SCHEMES = ("ipcc2006", "etf")  # factor_tables/reporting_allocation[_etf].csv
 
 # section -> key -> (python types, default, allowed values or None, description)
 _REQUIRED = object()
@@ -50,6 +51,12 @@ SCHEMA: dict[str, dict[str, tuple]] = {
                         "molar masses for C->CO2, CH4-C->CH4, N2O-N->N2O"),
         "ipcc2006_temperate": ((str,), "", IPCC2006_TEMPERATE + ("",),
                                "with factor_set ipcc2006: whether 'temperate' strata are cold or warm temperate"),
+        "allocation": ((str,), "ipcc2006", ALLOCATION_SCHEMES,
+                       "reporting categories: ipcc2006 (2006 IPCC Guidelines codes) or etf (common reporting tables "
+                       "of the Paris Agreement's enhanced transparency framework)"),
+        "transition_years": ((int,), 20, None,
+                             "years converted land stays converted (2006 IPCC Guidelines Vol. 4 Ch. 3), used with "
+                             "the activity column conversion_year"),
     },
     "inputs": {
         "activity": ((str,), _REQUIRED, None, "activity data (CSV or XLSX)"),
@@ -136,6 +143,8 @@ class Settings:
     fill_by_region: dict = field(default_factory=dict)
     fill_by_land_use: dict = field(default_factory=dict)
     max_input_mb: float = 512
+    allocation: str = "ipcc2006"
+    transition_years: int = 20
     source: Path | None = None
     raw: dict = field(default_factory=dict, compare=False, repr=False)
 
@@ -334,6 +343,9 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         if key not in land_uses:
             problems.append(_err("unknown land use", fname, column=f"timeseries.fill_by_land_use.{key}", found=key,
                                  expected=" | ".join(t for t in land_uses if t)))
+    if not 1 <= values["transition_years"] <= 100:
+        problems.append(_err("out of range", fname, column="method.transition_years",
+                             found=str(values["transition_years"]), expected="1 to 100"))
     if not 2 <= values["trend_years"] <= 50:
         problems.append(_err("out of range", fname, column="timeseries.trend_years", found=str(values["trend_years"]),
                              expected="2 to 50"))
@@ -402,5 +414,6 @@ def settings_from_dict(data: dict, path: Path, overrides: dict[str, Any] | None 
         fill=values["fill"], trend_years=values["trend_years"],
         qaqc={k: float(values[k]) for k in SCHEMA["qaqc"]}, fill_by_region=dict(values["fill_by_region"]),
         fill_by_land_use=dict(values["fill_by_land_use"]),
-        max_input_mb=values["max_input_mb"], source=path.resolve(), raw=data,
+        max_input_mb=values["max_input_mb"], allocation=values["allocation"],
+        transition_years=values["transition_years"], source=path.resolve(), raw=data,
     )

@@ -98,8 +98,9 @@ CASES = [
         (s.parent / "overrides.csv").read_text().replace("t CO2 ha-1 yr-1", "kg CH4 ha-1 yr-1")),
      "overrides.csv, row 2, column unit: unit cannot be converted for ef_co2_c_onsite"),
     ("unknown settings key", lambda s: s.write_text(s.read_text().replace("gwp =", "gwq =")),
+     # (the list names every [method] key, allocation and transition_years included)
      "column method.gwq: unknown key; found 'gwq'; expected one of factor_set, gwp, mass_ratios, "
-     "ipcc2006_temperate (did you mean gwp?)"),
+     "ipcc2006_temperate, allocation, transition_years (did you mean gwp?)"),
     ("unknown GWP set", lambda s: s.write_text(s.read_text().replace('gwp = "AR5"', 'gwp = "AR7"')),
      "column method.gwp: value not accepted; found 'AR7'; expected AR5 | AR4 | AR6 | SAR"),
     ("missing input file", lambda s: (s.parent / "fires.csv").unlink(), "column inputs.fires: input file not found"),

@@ -28,7 +28,9 @@ FINGERPRINTS = [
     ("offsite_peat_ipcc2006.csv", 4, 19, 1.7, "81851578c462e244e211f716bd62c7731221652a2dbb56d109e8e55749881de1"),
     ("rewetted_ipcc2013ws.csv", 13, 19, 527.21, "a6534f6a52294d782af611f1b7f00203c19262d20d0505226f6c1d3bb4452bca"),
     ("climate_response_ar5.csv", 28, 13, None, "8ab480c7aaa9052a61280ca1b36f94974b4e9b836ee49df1ffc201eddc9a72eb"),
-    ("sources.csv", 19, 5, None, "2088d399e8df1998cc6afab6888c5a7e3bf3f93bf1353a1fb0e7e5e404d6e65f"),
+    ("sources.csv", 21, 5, None, "c93f2bf8a8ddd616db66e6afde1dc71b3d0db1ffc56b49e19660b273ddafdc4f"),
+    ("reporting_allocation_etf.csv", 63, 8, None, "2646c8e6020520fb6dd3af2f90020c197f22d9fdbacd7d945cbabea2e36ea4a0"),
+    ("reporting_categories_etf.csv", 27, 6, None, "88bb3604afc18d217ad79b96c9b60b4cc02f845861ea00af30a8bfa0c7856771"),
 ]
 
 

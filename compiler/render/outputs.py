@@ -43,15 +43,22 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
     """
 
     def fill(tmp: Path) -> None:
+        from ..methods_chapter import chapter, write_chapter
         from ..schema import EXPORT_COLUMNS
+        from ..reporting_tables import reporting_tables
+        from .submission import write_csvs
 
+        reporting_tables(result)  # made once here, before the report process is forked
+        chapter(result)
         job = ReportJob.start(result, tmp) if report and not archive and _can_fork(parallel) else None
         try:
             write_csv(result.emissions, tmp / "emissions.csv", EXPORT_COLUMNS)
             write_factors_csv(result.factors_used, tmp / "factors.csv")
             write_csv(result.gap_fills, tmp / "gap_filling.csv")
-            write_datapackage(datapackage(result.settings.name, EXPORT_COLUMNS, __version__),
-                              tmp / "datapackage.json")
+            package = datapackage(result.settings.name, EXPORT_COLUMNS, __version__)
+            package["resources"].extend(write_csvs(result, tmp))  # the submission tables
+            write_chapter(result, tmp)  # methods_chapter.md and .docx
+            write_datapackage(package, tmp / "datapackage.json")
             write_workbook(result, tmp / "inventory.xlsx")
         except BaseException:
             if job is not None:

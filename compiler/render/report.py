@@ -496,6 +496,9 @@ def render_html(result, chart_svgs: dict[str, str] | None = None) -> str:
     env = Environment(loader=FileSystemLoader(str(resource_dir("report_templates"))),
                       autoescape=select_autoescape(["html", "j2"]), trim_blocks=True, lstrip_blocks=True)
     context = build_context(result, chart_svgs)
+    from .submission import report_context
+
+    context["submission"] = report_context(result)
     css = (resource_dir("report_templates") / "report.css").read_text(encoding="utf-8")
     return env.get_template("report.html.j2").render(**context, css=css)
 

@@ -183,7 +183,9 @@ def write_workbook(result, path: Path) -> None:
                notes=[f"Current submission minus the previous one ({result.recalculation['file']}), t and t CO2-eq. "
                       "dE = (A1 - A0) x EF0 (activity change) + A1 x (EF1 - EF0) (factor change, including GWP or "
                       "factor-set changes); strata added or removed; allocation change. The parts add up to "
-                      "difference_co2eq_t.",
+                      "difference_co2eq_t. factor_change is split into gwp_change (A1 x f0 x (GWP1 - GWP0), f in t "
+                      "of gas per ha), factor_set_change, shipped_value_change and override_change, which add up "
+                      "to it.",
                       f"Trend {base}-latest common year: previous {result.recalculation['previous_trend_pct']:.2f} %, "
                       f"current {result.recalculation['current_trend_pct']:.2f} %."])
     fills = result.gap_fills
@@ -220,6 +222,10 @@ def write_workbook(result, path: Path) -> None:
     settings_rows = s.as_table() + [(f"input sha256: {k}", v, "") for k, v in sorted(result.input_hashes.items())]
     _sheet(wb, "settings", ["setting", "value", "description"], settings_rows, widths={"setting": 44, "value": 66,
                                                                                         "description": 60})
+
+    from .submission import add_sheets
+
+    add_sheets(wb, result)  # organic soils and the time series, after the other sheets
 
     stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00")
     wb.properties.creator = f"histosol {result.version}"
