@@ -163,9 +163,10 @@ def _print_summary(result, folder: Path) -> None:
     est = cats[cats["notation_key"] == ""]
     totals = est.groupby("year")["co2eq_t"].sum() / 1000
     counts = result.findings["severity"].value_counts()
-    print(f"{s.name}: {s.first_year}-{s.last_year}, factor set {s.factor_set}, GWP100 {s.gwp}")
-    print(f"  net emissions {s.first_year}: {totals.get(s.first_year, 0.0):,.1f} kt CO2-eq; "
-          f"{s.last_year}: {totals.get(s.last_year, 0.0):,.1f} kt CO2-eq")
+    span = f"{s.first_year}" if s.first_year == s.last_year else f"{s.first_year}-{s.last_year}"
+    print(f"{s.name}: {span}, factor set {s.factor_set}, GWP100 {s.gwp}")
+    net = "; ".join(f"{year}: {totals.get(year, 0.0):,.1f} kt CO2-eq" for year in sorted({s.first_year, s.last_year}))
+    print(f"  net emissions {net}")
     print(f"  {len(result.activity)} activity rows, {len(result.emissions)} result rows, "
           f"{len(result.factors_used)} factors used")
     print(f"  findings: {counts.get('warning', 0)} warnings, {counts.get('info', 0)} notes "

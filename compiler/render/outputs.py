@@ -92,20 +92,25 @@ class ReportJob:
         return cls(process, receive)
 
     def finish(self) -> None:
-        """Wait for the report; raise what the child raised (or say how it died)."""
+        """Wait for the report; raise what the child raised (or say how it died).
+
+        The child's formatted traceback rides along as the ``__cause__`` of the exception raised here
+        (a :class:`ChildTraceback`), so ``--traceback`` shows where the report failed, not only this re-raise.
+        """
         try:
-            status, payload = self.connection.recv()
+            status, payload, child_tb = self.connection.recv()
         except EOFError:
-            status, payload = "died", None
+            status, payload, child_tb = "died", None, ""
         finally:
             self.connection.close()
             self.process.join()
         if status == "ok":
             return
+        cause = ChildTraceback(child_tb) if child_tb else None
         if status == "error" and isinstance(payload, BaseException):
-            raise payload
+            raise payload from cause
         raise RuntimeError(f"the report process ended without a result (exit code {self.process.exitcode})"
-                           + (f": {payload}" if payload else ""))
+                           + (f": {payload}" if payload else "")) from cause
 
     def cancel(self) -> None:
         if self.process.is_alive():
@@ -114,17 +119,27 @@ class ReportJob:
         self.connection.close()
 
 
+class ChildTraceback(Exception):
+    """The formatted traceback of an exception raised in the report process (shown as its cause)."""
+
+    def __str__(self) -> str:
+        return "raised in the report process:\n\n" + self.args[0].rstrip("\n")
+
+
 def _report_child(result, folder: Path, connection) -> None:
+    import traceback
+
     from .report import write_report
 
     try:
         write_report(result, folder)
-        connection.send(("ok", None))
-    except BaseException as exc:  # sent to the parent, which raises it there
+        connection.send(("ok", None, ""))
+    except BaseException as exc:  # sent to the parent, which raises it there with this traceback as its cause
+        text = "".join(traceback.format_exception(exc))
         try:
-            connection.send(("error", exc))
+            connection.send(("error", exc, text))
         except Exception:  # an exception that cannot be pickled: its text
-            connection.send(("text", f"{type(exc).__name__}: {exc}"))
+            connection.send(("text", f"{type(exc).__name__}: {exc}", text))
     finally:
         connection.close()
 

@@ -131,6 +131,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
     est = em[em["notation_key"] == ""]
     base, latest = s.first_year, s.last_year
     years = _years_shown(base, latest)
+    ends = sorted({base, latest})  # one column when the inventory has one year
     gwp = result.gwp
 
     totals = cats[cats["notation_key"] == ""].groupby("year")["co2eq_t"].sum() / 1000
@@ -142,13 +143,13 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         b, l = float(g.get(base, 0.0)), float(g.get(latest, 0.0))
         by_gas.append({"gas": gas, "base": _fmt(b), "latest": _fmt(l), "change": _pct(l, b), "raw_latest": l})
     cat_sum = (cats[cats["notation_key"] == ""].groupby(["category_code", "category_name", "year"])["co2eq_t"]
-               .sum().unstack("year").reindex(columns=[base, latest]).fillna(0.0) / 1000)
+               .sum().unstack("year").reindex(columns=ends).fillna(0.0) / 1000)
     by_category = [{"code": c, "name": n, "base": _fmt(r[base]), "latest": _fmt(r[latest]),
                     "change": _pct(r[latest], r[base]), "raw_latest": r[latest], "raw_change": r[latest] - r[base]}
                    for (c, n), r in cat_sum.iterrows() if r[base] or r[latest]]
 
     reg_sum = (est[est["co2eq_t"].notna()].groupby(["region", "year"])["co2eq_t"].sum().unstack("year")
-               .reindex(columns=[base, latest]).fillna(0.0) / 1000)
+               .reindex(columns=ends).fillna(0.0) / 1000)
     by_region = [{"region": name, "base": _fmt(r[base]), "latest": _fmt(r[latest]), "change": _pct(r[latest], r[base])}
                  for name, r in reg_sum.iterrows()]
     unverified_used = result.factors_used[result.factors_used["verification"] == "from_memory"]
@@ -177,7 +178,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         methods = sorted({METHOD_OF_PATHWAY[p] for p in pathways_by_cell.get((code, gas), [])})
         reason = _merge_reasons(g.loc[g["notation_key"] != "", "notation_reason"])
         tonnes = [_fmt(by_year.loc[y, "emission_t"], 1) if not by_year.loc[y, "notation_key"] else by_year.loc[y, "notation_key"]
-                  for y in (base, latest)]
+                  for y in ends]
         rows.append({"code": code, "name": name, "gas": gas, "cells": cells, "factor_ids": ids, "methods": methods,
                      "reason": reason, "tonnes": tonnes, "unit": "kt CO" if gas == "CO" else "kt CO2-eq",
                      "unverified": any(i in set(unverified_used["factor_id"]) for i in ids)})
@@ -232,7 +233,8 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
             review.append({**r, "related": shown})
     paragraph = _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas, result.activity)
     return {
-        "s": s, "result": result, "base": base, "latest": latest, "years": years,
+        "s": s, "result": result, "base": base, "latest": latest, "years": years, "ends": ends,
+        "single_year": base == latest,
         "version": result.version, "compile_date": result.compile_date,
         "hashes": sorted(result.input_hashes.items()),
         "total_base": _fmt(total_base), "total_latest": _fmt(total_latest), "total_change": _pct(total_latest, total_base),
@@ -368,8 +370,7 @@ def _uncertainty_context(result) -> dict | None:
     out = {"approach": unc.approach, "rules": list(METHOD_RULES.items()), "rows": [], "total": [], "trend": None}
     a1 = unc.approach1
     mc = unc.monte_carlo
-    years = (s.first_year, s.last_year)
-    for year in years:
+    for year in sorted({s.first_year, s.last_year}):
         entry = {"year": year}
         if a1 is not None:
             t = a1.total[a1.total["year"] == year].iloc[0]
@@ -409,6 +410,8 @@ def _key_category_context(result) -> dict | None:
     if kc is None:
         return None
     table = kc.table
+    if table.empty:  # nothing estimated (e.g. every area zero): no category to assess
+        return {"note": kc.note, "rows": [], "names": ""}
     key = table[table["key"]]
     return {"note": kc.note,
             "rows": [{"run": r["run"], "code": r["category_code"], "gas": r["gas"],
@@ -446,8 +449,18 @@ def _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas
     rewet_l = float(area.loc[latest].get("rewetted", 0.0)) if latest in area.index else 0.0
     drained_b = float(area.loc[base].get("drained", 0.0)) if base in area.index else 0.0
     drained_l = float(area.loc[latest].get("drained", 0.0)) if latest in area.index else 0.0
-    text = (f"Net emissions of organic soils {direction} from {_fmt(total_base)} kt CO2-eq in {base} to "
-            f"{_fmt(total_latest)} kt CO2-eq in {latest} ({change}). "
+    if base == latest:
+        return (f"Net emissions of organic soils were {_fmt(total_latest)} kt CO2-eq in {latest}. "
+                f"The largest category is {top['code']} {top['name']} ({_fmt(top['raw_latest'])} kt CO2-eq, "
+                f"{share:.0f} % of the gross total); {gas_top['gas']} is the largest gas. "
+                f"Drained area was {_fmt(drained_l / 1000)} thousand ha and rewetted area "
+                f"{_fmt(rewet_l / 1000)} thousand ha.")
+    if direction == "stayed":
+        level = f"stayed at {_fmt(total_latest)} kt CO2-eq from {base} to {latest}. "
+    else:
+        level = (f"{direction} from {_fmt(total_base)} kt CO2-eq in {base} to "
+                 f"{_fmt(total_latest)} kt CO2-eq in {latest} ({change}). ")
+    text = (f"Net emissions of organic soils {level}"
             f"The largest category in {latest} is {top['code']} {top['name']} ({_fmt(top['raw_latest'])} kt CO2-eq, "
             f"{share:.0f} % of the gross total); {gas_top['gas']} is the largest gas. "
             f"The largest change since {base} is in {mover['code']} {mover['name']} "
