@@ -272,7 +272,7 @@ def _factors(args) -> int:
                           ("soil_status", args.soil_status)):
         if value:
             reg = reg[(reg[column] == value) | (reg[column] == "")]
-    cols = ["factor_id", "quantity", "value", "unit", "ci_low", "ci_high", "table", "verification", "row_label"]
+    cols = ["factor_id", "quantity", "value", "unit", "ci_low", "ci_high", "table", "row_label"]
     if reg.empty:
         raise InputError("no factor matches these filters")
     if args.csv:
@@ -281,12 +281,35 @@ def _factors(args) -> int:
     view = reg[cols].copy()
     view["95% interval"] = [("" if pd.isna(lo) else f"{lo:g} to {hi:g}") for lo, hi in zip(view["ci_low"], view["ci_high"])]
     view["value"] = view["value"].map(lambda v: f"{v:g}")
-    view = view[["factor_id", "quantity", "value", "unit", "95% interval", "table", "verification", "row_label"]]
-    with pd.option_context("display.max_rows", None, "display.width", 250, "display.max_colwidth", 60):
-        print(view.to_string(index=False))
-    n_mem = int((reg["verification"] == "from_memory").sum())
-    print(f"\n{len(reg)} factors; {n_mem} marked from_memory (not yet checked against the published table).")
+    view = view[["factor_id", "quantity", "value", "unit", "95% interval", "table", "row_label"]]
+    view = view.rename(columns={"row_label": "row"})
+    # One block per quantity; the row label takes what is left of FACTORS_WIDTH, wrapped onto further lines.
+    import textwrap
+
+    shown = [c for c in view.columns if c != "quantity"]
+    widths = {c: max(view[c].astype(str).str.len().max(), len(c)) for c in shown if c != "row"}
+    widths["row"] = max(FACTORS_WIDTH - sum(w + 2 for w in widths.values()), 24)
+
+    def line(cells) -> str:
+        return "  ".join(str(v).rjust(widths[c]) if c == "value" else str(v).ljust(widths[c])
+                         for c, v in zip(shown, cells)).rstrip()
+
+    print(line(shown))
+    for quantity, block in view.groupby("quantity", sort=False):
+        print(f"{quantity}:")
+        for cells in block[shown].itertuples(index=False):
+            *head, row = cells
+            parts = textwrap.wrap(str(row), widths["row"]) or [""]
+            print(line([*head, parts[0]]))
+            for more in parts[1:]:
+                print(line([""] * len(head) + [more]))
+    print(f"\n{len(reg)} factors. The shipped values have not been checked against the published text by the "
+          "tool's authors:\ncheck each against your copy of the guidance before official use and record the "
+          "result in a factor\nreview log ([inputs] factor_review); --csv gives the full row labels and citations.")
     return EXIT_OK
+
+
+FACTORS_WIDTH = 118  # characters of a `histosol factors` line
 
 
 if __name__ == "__main__":

@@ -269,7 +269,23 @@ def _check_review(emissions, review, settings, log) -> None:
                     expected="an override for every stratum that uses this factor")
 
 
+AGENCY_CHECK = ("agrees", "differs", "not yet checked", "own factor")
+
+
 def _attach_review(factors: pd.DataFrame, review: pd.DataFrame) -> pd.DataFrame:
+    """The factor review log's last entry per factor, and ``agency_check``: the agency's status of each factor.
+
+    ``agency_check`` is what the outputs print: ``agrees`` / ``differs`` (the review log's result),
+    ``not yet checked`` (a shipped value the agency has not checked against its copy of the guidance),
+    ``own factor`` (an override the agency supplied with its citation).
+    """
+    factors = _with_review(factors, review)
+    status = factors["review_result"].where(factors["review_result"] != "", "not yet checked")
+    factors["agency_check"] = status.where(factors["factor_set"] != "override", "own factor")
+    return factors
+
+
+def _with_review(factors: pd.DataFrame, review: pd.DataFrame) -> pd.DataFrame:
     factors = factors.copy()
     for col in ("review_result", "reviewed_by", "reviewed_on", "reviewed_against"):
         factors[col] = ""

@@ -92,7 +92,8 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
         if fac is not None:
             source = f"{fac['citation']}; {fac['table']} {fac['row_label']}".strip("; ")
         lines.append(f"    factor {r['factor_id']} = {_fmt(r['factor_value'])} {r['factor_unit']} ({r['tier']}"
-                     + (f", {fac['verification']}" if fac is not None else "") + ")")
+                     + (f", agency check: {fac['agency_check']}" if fac is not None and "agency_check" in fac
+                        else "") + ")")
         if source:
             lines.append(f"      source: {source}")
         if r["parameter_id"]:

@@ -21,7 +21,7 @@ FINGERPRINTS = [
     ("drained_ipcc2013ws.csv", 87, 19, 9443.21, "ca2651eff3d0c960377486e735a5ce9d974e3101fd7d8967bf29a67d4e097b32"),
     ("fire_ipcc2013ws.csv", 13, 15, 2865.2, "0524c5ea079091037eab2f7374a0ea259fe1e05d5473a47235355fcb3019da0a"),
     ("gwp.csv", 13, 11, 1280.8, "57182511af089f33525d168ae3e8f379e5b927f8173d3944d7aeecc5c87e5aa3"),
-    ("pathway_coverage.csv", 28, 8, None, "972741bd042b81a2ff886ddd7be26f6336173059d918702aa26dd75d16d354e7"),
+    ("pathway_coverage.csv", 28, 9, None, "5bc91ce74f65346f582517592b3a390301beb7b1a4eecc47f5742d8087b5c060"),
     ("reporting_allocation.csv", 28, 7, None, "bf4ecb1c13b20ff58f38c1a05ed12ca8d8059c559145192298bd1f82809fbcf4"),
     ("reporting_categories.csv", 18, 5, None, "5e99e555e12484e1b71df1435db9ea07cd200042ddb96f87f89325f1797bb645"),
     ("rewetted_ipcc2013ws.csv", 13, 19, 527.21, "2d0dd3f0216cef86b883531ef90a762c6846f1a14ee11537c71ee838553176fe"),

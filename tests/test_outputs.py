@@ -133,12 +133,15 @@ def test_workbook_splits_the_strata_over_sheets_and_streams_them_like_a_serial_w
     assert got["input_row"].tolist() == em["input_row"].tolist()
 
 
-def test_workbook_factors_sheet_shows_verification(demo_output):
+def test_workbook_factors_sheet_shows_the_agency_check(demo_output):
+    # The agency's status from its factor review log; the repository's verification notes are not shown.
     ws = openpyxl.load_workbook(demo_output / "inventory.xlsx")["factors"]
     header = [c.value for c in ws[2]]
-    status = {ws.cell(r, 1).value: ws.cell(r, header.index("verification") + 1).value for r in range(3, ws.max_row + 1)}
-    assert status["ws13-t2.1-tem-crop"] == "from_memory"
-    assert status["quillfen-grass-co2"] == "supplied"
+    assert "verification" not in header and "verification_note" not in header
+    status = {ws.cell(r, 1).value: ws.cell(r, header.index("agency_check") + 1).value for r in range(3, ws.max_row + 1)}
+    assert status["ws13-t2.1-tem-crop"] == "agrees"  # examples/demo/factor_review.csv
+    assert status["ws13-t2.5-tem-crop"] == "not yet checked"
+    assert status["quillfen-grass-co2"] == "own factor"
 
 
 def test_user_text_is_never_a_formula(tmp_path, demo_copy):

@@ -88,7 +88,7 @@ def test_demo_is_internally_consistent_and_its_findings_are_stable(demo_findings
     assert not [f for f in demo_findings if f.severity == "error"]
     counts = pd.Series([f.check for f in demo_findings]).value_counts().to_dict()
     assert counts == {"year_on_year_emissions": 51, "year_on_year_area": 26, "area_balance": 8,
-                      "from_memory_in_use": 3, "estimated_ne_with_area": 2, "ne_insignificance": 2,
+                      "factors_not_checked": 3, "estimated_ne_with_area": 2, "ne_insignificance": 2,
                       "override_partial_series": 1}
     order = [c.check for c in Q.CHECKS]
     positions = [order.index(f.check) for f in demo_findings]
@@ -420,15 +420,16 @@ def test_sums_tolerance_is_relative(demo_result):
 # --- 10 provenance --------------------------------------------------------------------------------------------
 
 
-def test_from_memory_factors_listed_per_table(demo_result, demo_findings):
-    found = only(demo_findings, "from_memory_in_use")
+def test_factors_the_agency_has_not_checked_listed_per_table(demo_result, demo_findings):
+    found = only(demo_findings, "factors_not_checked")
     fu = demo_result.factors_used
-    expected = fu[fu["verification"] == "from_memory"].groupby("origin").size()
+    expected = fu[(fu["agency_check"] == "not yet checked") & (fu["factor_set"] != "override")].groupby("origin").size()
     assert [f.file for f in found] == [f"factor_tables/{o}" for o in expected.index]
     assert [int(f.message.split()[0]) for f in found] == list(expected)
     assert all(f.severity == "info" for f in found)
-    checked = fu.assign(verification=fu["verification"].replace("from_memory", "checked"))
-    assert only(run(with_tables(demo_result, factors_used=checked)), "from_memory_in_use") == []
+    assert not any("ws13-t2.1-tem-crop" in f.message for f in found)  # the demo's review log: agrees
+    checked = fu.assign(agency_check="agrees")
+    assert only(run(with_tables(demo_result, factors_used=checked)), "factors_not_checked") == []
 
 
 # --- 11 completeness and insignificance -----------------------------------------------------------------------------

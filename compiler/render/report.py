@@ -27,8 +27,9 @@ CAUTIONS = [
      "conditions; the 95 % intervals in the factor register show how coarse."),
     ("Key categories deserve higher tiers.", "Where a category is key, country-specific factors (Tier 2) or "
      "models and measurements (Tier 3) are good practice."),
-    ("Unverified factors.", "Factors marked from_memory were entered from the published tables but not yet "
-     "checked against the text; check each against your copy of the guidance before official use."),
+    ("Shipped factor values.", "The Tier 1 values shipped with the tool have not been checked against the "
+     "published text by the tool's authors and must be checked against your copy of the guidance before "
+     "official use; record each check in the factor review log."),
     ("National QA/QC.", "These estimates must pass the national QA/QC plan and its review before they are "
      "submitted."),
     ("Rewetting works.", "Rewetting needs hydrological design, permits and compliance with local codes, carried "
@@ -152,7 +153,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
                .reindex(columns=ends).fillna(0.0) / 1000)
     by_region = [{"region": name, "base": _fmt(r[base]), "latest": _fmt(r[latest]), "change": _pct(r[latest], r[base])}
                  for name, r in reg_sum.iterrows()]
-    unverified_used = result.factors_used[result.factors_used["verification"] == "from_memory"]
+    unverified_used = unchecked_factors(result.factors_used)
     factor_sources = _register(result)
 
     # Results: every category x gas row, kt CO2-eq (kt CO for CO) in the years shown.
@@ -240,6 +241,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         "total_base": _fmt(total_base), "total_latest": _fmt(total_latest), "total_change": _pct(total_latest, total_base),
         "by_gas": by_gas, "by_category": by_category, "by_region": by_region, "paragraph": paragraph,
         "cautions": CAUTIONS, "unverified": sorted(unverified_used["factor_id"]),
+        "unchecked_table": _unchecked_table(unverified_used),
         "rows": rows, "never": never, "notation_keys": NOTATION_KEYS,
         "charts": chart_svgs if chart_svgs is not None else charts.all_charts(result),
         "findings": _findings_context(findings), "findings_total": len(findings),
@@ -322,6 +324,20 @@ def _describe(r) -> str:
     return ", ".join(parts)
 
 
+def unchecked_factors(factors_used: pd.DataFrame) -> pd.DataFrame:
+    """Shipped factors in use that the agency has not marked ``agrees`` in its factor review log."""
+    status = (factors_used["agency_check"] if "agency_check" in factors_used
+              else pd.Series("not yet checked", index=factors_used.index))
+    return factors_used[(factors_used["factor_set"] != "override") & (status != "agrees")]
+
+
+def _unchecked_table(unchecked: pd.DataFrame) -> list[dict]:
+    """The cautions' table of unchecked factors in use: published table, row, value."""
+    rows = unchecked.sort_values(["table", "row_label", "factor_id"])
+    return [{"id": r["factor_id"], "table": r["table"], "row": r["row_label"],
+             "value": f"{r['value']:g} {r['unit']}"} for _, r in rows.iterrows()]
+
+
 def _register(result) -> list[dict]:
     f = result.factors_used
     em = result.emissions[result.emissions["notation_key"] == ""]
@@ -344,11 +360,12 @@ def _register(result) -> list[dict]:
                 defaults.append(f"{d} ({reg.loc[d, 'value']:g} {reg.loc[d, 'unit']})")
         out.append({
             "id": row["factor_id"], "quantity": row["quantity"], "value": f"{row['value']:g}", "unit": row["unit"],
-            "interval": interval, "tier": row["tier"], "verification": row["verification"],
-            "note": row["verification_note"], "citation": row["citation"],
-            "ref": row["source_id"] or "override",
+            "interval": interval, "tier": row["tier"],
+            "agency_check": row.get("agency_check", "not yet checked"),
+            "unchecked": row["factor_set"] != "override" and row.get("agency_check", "") != "agrees",
+            "citation": row["citation"], "ref": row["source_id"] or "override",
             "locator": ", ".join(x for x in (row["table"], row["row_label"],
-                                             f"p. {row['page']}" if row["page"] not in ("", "not recorded") else "page not recorded")
+                                             f"p. {row['page']}" if row["page"] not in ("", "not recorded") else "")
                                  if x),
             "strata": [_describe(r) for _, r in u.iterrows()],
             "categories": sorted(set(u["category_code"])),
@@ -480,7 +497,8 @@ GLOSSARY = [
     ("CO2-eq", "mass of a gas times its 100-year global warming potential (GWP100)"),
     ("95 % interval", "the range printed with a factor, within which the true mean lies with 95 % probability"),
     ("DOC", "dissolved organic carbon, exported by drainage water and mostly emitted as CO2 downstream"),
-    ("from_memory", "a shipped factor entered from the published table but not yet checked against its text"),
+    ("agency check", "the agency's status of a shipped factor, from its factor review log: agrees, differs "
+                     "(an error while the factor is used) or not yet checked; own factor for an override"),
 ]
 
 

@@ -174,14 +174,21 @@ def write_datapackage(package: dict, path: Path) -> None:
 
 FACTOR_COLUMNS = ["factor_id", "factor_set", "quantity", "climate_zone", "land_use", "soil_status", "nutrient_status",
                   "drainage_depth", "subtype", "fire_type", "value", "unit", "ci_low", "ci_high", "tier",
-                  "verification", "verification_note", "source_id", "citation", "table", "row_label", "page",
-                  "region", "first_year", "last_year", "review_result", "reviewed_by", "reviewed_on",
-                  "reviewed_against"]
+                  "agency_check", "source_id", "citation", "table", "row_label", "page",
+                  "region", "first_year", "last_year", "reviewed_by", "reviewed_on", "reviewed_against"]
+
+
+def public_factors(factors: pd.DataFrame) -> pd.DataFrame:
+    """The factor table as the outputs show it: a page the shipped table did not record is left blank."""
+    frame = factors.copy()
+    if "page" in frame:
+        frame["page"] = frame["page"].astype(str).replace({"not recorded": ""})
+    return frame
 
 
 def write_factors_csv(factors: pd.DataFrame, path: Path) -> None:
     """factors.csv: every factor used, with its source and locator (what a reviewer's trace reads)."""
-    frame = factors.copy()
+    frame = public_factors(factors)
     for col in FACTOR_COLUMNS:
         if col not in frame:
             frame[col] = ""
