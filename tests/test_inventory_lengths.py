@@ -95,7 +95,7 @@ def test_chart_year_axes_carry_whole_years_within_the_data(years):
 
     index = list(range(years[0], years[1] + 1))
     frame = pd.DataFrame({"cropland": [1.0] * len(index), "wetlands": [-0.5] * len(index)}, index=index)
-    fig, ax = plt.subplots()
+    fig, ax = charts._half()
     charts._stack(ax, frame, charts.LAND_USE_STYLE, charts.LAND_USE_LABEL)
     fig.canvas.draw()
     ticks = [t for t in ax.get_xticks() if ax.get_xlim()[0] <= t <= ax.get_xlim()[1]]
@@ -103,6 +103,20 @@ def test_chart_year_axes_carry_whole_years_within_the_data(years):
     assert {int(t) for t in ticks} <= set(index)
     if len(index) > 1:
         assert ax.get_xlim() == (years[0], years[1])
-    labels = [h.get_label() for h in ax.get_legend().legend_handles]
+    labels = [t.get_text() for t in fig.legends[0].get_texts()]
     assert labels == ["Cropland", "Wetlands", "net total"]
     plt.close(fig)
+
+
+def test_chart_labels_are_plain_text():
+    """A name with "$" (a region or scenario) is drawn as written, never parsed as math text."""
+    from compiler.render import charts, scenario_outputs
+
+    frame = pd.DataFrame({"scenario": ["cost $5 / $10 ha"] * 3, "year": [2024, 2025, 2026], "v": [1.0, 2.0, 3.0]})
+    svg = scenario_outputs._lines(frame, "v", "t", "Pathway $x$")
+    assert "cost $5 / $10 ha" in svg and "Pathway $x$" in svg
+    # Two charts in one page never share an element id.
+    ids = set(re.findall(r'id="([^"]+)"', svg))
+    other = set(re.findall(r'id="([^"]+)"', charts.area_by_status(pd.DataFrame(
+        {"year": [2024], "soil_status": ["drained"], "area_ha": [5.0]}))))
+    assert ids and other and not ids & other

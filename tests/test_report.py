@@ -93,6 +93,9 @@ def test_archive_is_pdfa3_with_the_data_attached(archived):
         assert contents[0] == (archived / name).read_bytes(), name
     metadata = reader.xmp_metadata
     assert metadata is not None and "pdfaid" in str(reader.trailer["/Root"]["/Metadata"].get_object().get_data())
+    # The catalogue's associated files (PDF/A-3): each attachment once.
+    associated = [ref.get_object()["/F"] for ref in reader.trailer["/Root"]["/AF"]]
+    assert sorted(associated) == ["datapackage.json", "emissions.csv", "manifest.json"]
 
 
 def test_html_is_self_contained(archived):

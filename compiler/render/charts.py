@@ -7,6 +7,7 @@ SVG carries no date and fixed ids, so the report is reproducible.
 from __future__ import annotations
 
 import io
+import re
 
 import matplotlib
 
@@ -55,12 +56,35 @@ def year_axis(ax, years) -> None:
     ax.xaxis.set_major_formatter(lambda value, _pos: f"{value:.0f}")
 
 
-def _svg(fig) -> str:
+HALF = (3.55, 2.75)  # inches: a chart of half the page width (two side by side)
+_ID = re.compile(r'(\bid="|url\(#|xlink:href="#)')
+
+
+def _svg(fig, name: str = "") -> str:
+    """The figure as SVG text; its ids prefixed with ``name`` so that charts inlined in one page never share one.
+
+    A figure with a constrained layout keeps its size (charts side by side then share one text size);
+    others are cut to their drawing.
+    """
     buf = io.StringIO()
-    fig.savefig(buf, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": "histosol"})
+    tight = None if fig.get_layout_engine() is not None else "tight"
+    fig.savefig(buf, format="svg", bbox_inches=tight, metadata={"Date": None, "Creator": "histosol"})
     plt.close(fig)
     text = buf.getvalue()
-    return text[text.index("<svg"):]
+    text = text[text.index("<svg"):]
+    return _ID.sub(lambda m: m.group(1) + (f"{name}-" if name else ""), text) if name else text
+
+
+def _half() -> tuple:
+    """A figure of half the page width, laid out so that its legend goes below the axes."""
+    return plt.subplots(figsize=HALF, layout="constrained")
+
+
+def _legend_below(ax, handles=None, ncol: int = 3) -> None:
+    if handles is None:
+        handles, _ = ax.get_legend_handles_labels()
+    ax.figure.legend(handles=handles, loc="outside lower left", ncol=ncol, frameon=False, fontsize=7,
+                     handlelength=1.6, columnspacing=1.0)
 
 
 def _stack(ax, frame: pd.DataFrame, styles: dict, labels: dict | None = None):
@@ -113,7 +137,7 @@ def _stack(ax, frame: pd.DataFrame, styles: dict, labels: dict | None = None):
     handles.append(line)
     ax.axhline(0, color="#444444", linewidth=0.5)
     year_axis(ax, years)
-    ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+    _legend_below(ax, handles)
 
 
 def _nothing(ax, text: str) -> None:
@@ -129,11 +153,11 @@ def _kt(est: pd.DataFrame, column: str) -> pd.DataFrame:
 def _stacked_chart(emissions: pd.DataFrame, column: str, styles: dict, title: str, labels: dict | None = None) -> str:
     """Net emissions stacked by ``column`` (pathway, land use, gas), in kt CO2-eq."""
     est = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
-    fig, ax = plt.subplots(figsize=(6.2, 2.8))
+    fig, ax = _half()
     _stack(ax, _kt(est, column), styles, labels)
     ax.set_ylabel("kt CO2-eq per year")
     ax.set_title(title, loc="left")
-    return _svg(fig)
+    return _svg(fig, column)
 
 
 def emissions_by_pathway(emissions: pd.DataFrame) -> str:
@@ -147,7 +171,7 @@ def emissions_by_land_use(emissions: pd.DataFrame) -> str:
 def area_by_status(activity: pd.DataFrame) -> str:
     table = activity.pivot_table(index="year", columns="soil_status", values="area_ha", aggfunc="sum",
                                  fill_value=0.0) / 1000
-    fig, ax = plt.subplots(figsize=(6.2, 2.4))
+    fig, ax = _half()
     styles = {"drained": ("#6b4a2f", "-", None), "rewetted": ("#2f7fa8", "--", "o")}
     for col, (colour, line, marker) in styles.items():
         if col in table:
@@ -158,8 +182,8 @@ def area_by_status(activity: pd.DataFrame) -> str:
     ax.set_ylabel("thousand ha")
     ax.set_ylim(0, None if table.to_numpy().max() > 0 else 1)
     ax.set_title("Drained and rewetted organic-soil area", loc="left")
-    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
-    return _svg(fig)
+    _legend_below(ax)
+    return _svg(fig, "area")
 
 
 def contribution_by_gas(emissions: pd.DataFrame) -> str:
@@ -197,7 +221,7 @@ def recalculation_series(by_cell: pd.DataFrame) -> str:
     ax.set_ylabel("kt CO2-eq per year")
     ax.set_title("Net emissions: previous and current submission", loc="left")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
-    return _svg(fig)
+    return _svg(fig, "recalculation")
 
 
 def uncertainty_intervals(summary: pd.DataFrame, year: int) -> str:
@@ -214,7 +238,7 @@ def uncertainty_intervals(summary: pd.DataFrame, year: int) -> str:
     ax.axvline(0, color="#444444", linewidth=0.5)
     ax.set_xlabel("95 % interval, percent of the estimate")
     ax.set_title(f"Uncertainty of each category and gas, {year} (Approach 2)", loc="left")
-    return _svg(fig)
+    return _svg(fig, "uncertainty")
 
 
 def key_category_shares(table: pd.DataFrame, column: str, cumulative: str, threshold: float, title: str) -> str:
@@ -233,4 +257,4 @@ def key_category_shares(table: pd.DataFrame, column: str, cumulative: str, thres
     ax.set_ylim(0, 105)
     ax.set_title(title, loc="left")
     ax.legend(loc="center right", frameon=False)
-    return _svg(fig)
+    return _svg(fig, "key-level")

@@ -8,7 +8,9 @@ URL or path, including one that a user's text might carry, is refused.
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
+import os
 from pathlib import Path
 from urllib.parse import unquote, urlparse
 
@@ -502,9 +504,17 @@ GLOSSARY = [
 ]
 
 
+def side_by_side(items) -> list[tuple]:
+    """A long narrow list as rows of two: the first half down the left, the second down the right."""
+    items = list(items)
+    half = (len(items) + 1) // 2
+    return [(items[i], items[half + i] if half + i < len(items) else None) for i in range(half)]
+
+
 def render_html(result, chart_svgs: dict[str, str] | None = None) -> str:
     env = Environment(loader=FileSystemLoader(str(resource_dir("report_templates"))),
                       autoescape=select_autoescape(["html", "j2"]), trim_blocks=True, lstrip_blocks=True)
+    env.filters["side_by_side"] = side_by_side
     context = build_context(result, chart_svgs)
     css = (resource_dir("report_templates") / "report.css").read_text(encoding="utf-8")
     return env.get_template("report.html.j2").render(**context, css=css)
@@ -518,7 +528,8 @@ def write_report(result, folder: Path) -> RestrictedFetcher:
     (folder / "report.html").write_text(html, encoding="utf-8")
     fetcher = RestrictedFetcher(resource_dir("report_templates"))
     document = HTML(string=html, base_url=str(resource_dir("report_templates")) + "/", url_fetcher=fetcher).render()
-    document.write_pdf(folder / "report.pdf", pdf_identifier=_identifier(result))
+    with _fixed_font_dates(result):
+        document.write_pdf(folder / "report.pdf", pdf_identifier=_identifier(result))
     result._report_document = document  # reused by write_archive: the layout is done once
     return fetcher
 
@@ -539,8 +550,37 @@ def write_archive(result, folder: Path) -> None:
                               ("manifest.json", "run manifest")):
         attachments.append(Attachment(string=(folder / name).read_bytes(), name=name, description=description,
                                       created=stamp, modified=stamp, relationship="Data"))
-    document.write_pdf(folder / "report-archive.pdf", pdf_variant="pdf/a-3b", attachments=attachments,
-                       pdf_identifier=_identifier(result))
+    with _fixed_font_dates(result):
+        document.write_pdf(folder / "report-archive.pdf", pdf_variant="pdf/a-3b", attachments=attachments,
+                           pdf_identifier=_identifier(result), finisher=_associated_files_once)
+
+
+def _associated_files_once(document, pdf) -> None:
+    """The catalogue's /AF array with each attachment once (WeasyPrint 70 lists every file spec twice)."""
+    import pydyf
+
+    files = pdf.catalog.get("AF")
+    if files:
+        pdf.catalog["AF"] = pydyf.Array(dict.fromkeys(files))
+
+
+@contextlib.contextmanager
+def _fixed_font_dates(result):
+    """Font subsets made by fontTools carry a modification time (the ``head`` table), by default the clock's.
+
+    fontTools takes it from SOURCE_DATE_EPOCH when set (the reproducible-builds convention): set to the
+    compile date while the PDF is written, so two runs give the same bytes.
+    """
+    stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00+00:00")
+    before = os.environ.get("SOURCE_DATE_EPOCH")
+    os.environ["SOURCE_DATE_EPOCH"] = str(int(stamp.timestamp()))
+    try:
+        yield
+    finally:
+        if before is None:
+            os.environ.pop("SOURCE_DATE_EPOCH", None)
+        else:
+            os.environ["SOURCE_DATE_EPOCH"] = before
 
 
 def _identifier(result) -> bytes:
