@@ -36,8 +36,9 @@ def _parser() -> argparse.ArgumentParser:
     c.add_argument("--quiet", action="store_true", help="print nothing but errors")
     _report_options(c)
 
-    k = sub.add_parser("check", help="validate all inputs and print every finding; writes nothing")
+    k = sub.add_parser("check", help="validate all inputs and print the findings by check; writes nothing")
     k.add_argument("settings", help="settings file (TOML)")
+    k.add_argument("--all", action="store_true", help="print every finding (default: the first few of each check)")
 
     r = sub.add_parser("compare", help="recalculations: differences between two submissions, with their causes")
     r.add_argument("previous", help="output folder or emissions.csv(.gz) of the previous submission")
@@ -48,7 +49,8 @@ def _parser() -> argparse.ArgumentParser:
     t = sub.add_parser("trace", help="show how one reported number was made")
     t.add_argument("output", help="output folder of a compile")
     t.add_argument("--category", required=True, help="category code, e.g. 3.B.2.a")
-    t.add_argument("--gas", required=True, choices=["CO2", "CH4", "N2O", "CO"])
+    t.add_argument("--gas", required=True, type=str.upper, choices=["CO2", "CH4", "N2O", "CO"],
+                   help="CO2, CH4, N2O or CO (any case)")
     t.add_argument("--year", required=True, type=int)
     t.add_argument("--region", help="only this region")
 
@@ -111,7 +113,7 @@ def _run(args) -> int:
     if args.command == "trace":
         return _trace(args)
     if args.command == "check":
-        return _check(Path(args.settings))
+        return _check(Path(args.settings), args.all)
     if args.command == "demo":
         from .resources import resource_dir
 
@@ -230,7 +232,11 @@ def _compare(args) -> int:
           "strata added / removed; allocation change")
     cols = ["category_code", "gas", "previous_co2eq_t", "current_co2eq_t", "difference_co2eq_t", "difference_pct",
             *PARTS]
-    with pd.option_context("display.width", 250, "display.max_columns", None, "display.float_format", "{:,.1f}".format):
+    def one_decimal(value: float) -> str:  # never "-0.0"
+        text = f"{value:,.1f}"
+        return "0.0" if text == "-0.0" else text
+
+    with pd.option_context("display.width", 250, "display.max_columns", None, "display.float_format", one_decimal):
         print(view[cols].to_string(index=False) if not view.empty else "  no differences")
     total = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum().loc[year]
     print(f"Total {year}: {total['previous_co2eq_t'] / 1000:,.1f} -> {total['current_co2eq_t'] / 1000:,.1f} kt CO2-eq")
@@ -246,12 +252,24 @@ def _trace(args) -> int:
     return EXIT_OK
 
 
-def _check(settings: Path) -> int:
+CHECK_SHOWN = {"error": 10, "warning": 3, "info": 3}  # findings printed per check by `histosol check`
+
+
+def _check(settings: Path, every: bool = False) -> int:
     from .pipeline import check_inventory
 
     findings = check_inventory(settings)
-    for f in findings:
-        print(f.render())
+    groups: dict[tuple, list] = {}
+    for f in findings:  # by severity and check, in the order they were raised
+        groups.setdefault((f.severity, f.check), []).append(f)
+    order = {"error": 0, "warning": 1, "info": 2}
+    for (severity, check), items in sorted(groups.items(), key=lambda kv: order.get(kv[0][0], 3)):
+        shown = items if every else items[:CHECK_SHOWN.get(severity, 3)]
+        for f in shown:
+            print(f.render())
+        if len(items) > len(shown):
+            print(f"  ... and {len(items) - len(shown)} more {severity} findings of [{check}] "
+                  f"({len(items)} in all; --all lists every one)")
     errors = sum(f.severity == "error" for f in findings)
     warnings = sum(f.severity == "warning" for f in findings)
     print(f"{errors} errors, {warnings} warnings, {len(findings) - errors - warnings} notes")

@@ -455,7 +455,8 @@ def _jumps(wide: pd.DataFrame, pct: float, floor: float) -> pd.DataFrame:
     with np.errstate(divide="ignore", invalid="ignore"):
         relative = np.where(np.abs(prev) > 0, np.abs(change) / np.abs(prev) * 100.0,
                             np.where(np.abs(change) > 0, np.inf, 0.0))
-    i, j = np.nonzero(~np.isnan(prev) & (relative > pct))
+    # "Above" the threshold: a change of exactly pct % (up to rounding of the division) is not flagged.
+    i, j = np.nonzero(~np.isnan(prev) & (relative > pct * (1 + 1e-9)))
     keys = wide.index[i].to_frame(index=False) if len(i) else pd.DataFrame(columns=list(wide.index.names))
     out = keys.reset_index(drop=True).assign(
         year=np.asarray(wide.columns)[j].astype(int), before=prev[i, j], after=now[i, j], change=change[i, j],

@@ -97,13 +97,13 @@ CASES = [
         (s.parent / "overrides.csv").read_text().replace("t CO2 ha-1 yr-1", "kg CH4 ha-1 yr-1")),
      "overrides.csv, row 2, column unit: unit cannot be converted for ef_co2_c_onsite"),
     ("unknown settings key", lambda s: s.write_text(s.read_text().replace("gwp =", "gwq =")),
-     "column method.gwq: unknown key; found 'gwq'; expected one of factor_set, gwp, mass_ratios, "
+     "setting method.gwq: unknown key; found 'gwq'; expected one of factor_set, gwp, mass_ratios, "
      "ipcc2006_temperate (did you mean gwp?)"),
     ("unknown GWP set", lambda s: s.write_text(s.read_text().replace('gwp = "AR5"', 'gwp = "AR7"')),
-     "column method.gwp: value not accepted; found 'AR7'; expected AR5 | AR4 | AR6 | SAR"),
-    ("missing input file", lambda s: (s.parent / "fires.csv").unlink(), "column inputs.fires: input file not found"),
+     "setting method.gwp: value not accepted; found 'AR7'; expected AR5 | AR4 | AR6 | SAR"),
+    ("missing input file", lambda s: (s.parent / "fires.csv").unlink(), "setting inputs.fires: input file not found"),
     ("path outside settings folder", lambda s: s.write_text(s.read_text().replace('"fires.csv"', '"../fires.csv"')),
-     "column inputs.fires: path leaves the settings folder"),
+     "setting inputs.fires: path leaves the settings folder"),
     ("review differs", lambda s: (s.parent / "factor_review.csv").write_text(
         (s.parent / "factor_review.csv").read_text().replace(",agrees,", ",differs,")),
      "factor ws13-t2.1-tem-crop was found to differ"),
