@@ -129,31 +129,19 @@ def _run(args) -> int:
     return code
 
 
-class _Progress:
-    """A one-line progress bar on stderr, only on a terminal."""
-
-    def __init__(self, label: str, enabled: bool):
-        self.label, self.enabled, self.shown = label, enabled and sys.stderr.isatty(), False
-
-    def __call__(self, done: int, total: int) -> None:
-        if not self.enabled or total <= 0:
-            return
-        width = 30
-        filled = int(width * done / total)
-        sys.stderr.write(f"\r{self.label} [{'#' * filled}{'.' * (width - filled)}] {done}/{total}")
-        sys.stderr.flush()
-        self.shown = True
-        if done >= total:
-            sys.stderr.write("\n")
-
-
 def _compile(settings: Path, out: Path, quiet: bool, report: bool, archive: bool, overrides: dict) -> int:
     from .pipeline import compile_inventory
 
-    result = compile_inventory(settings, progress=_Progress("Monte Carlo", not quiet), **overrides)
+    from .progress import Progress
+
     if archive and not report:
         raise InputError("--archive needs the report: drop --no-report")
-    folder = result.write(out, report=report, archive=archive)
+    with Progress(quiet) as progress:
+        result = compile_inventory(settings, progress=progress, **overrides)
+        result._progress = progress
+        progress.stage("writing the CSV tables")
+        folder = result.write(out, report=report, archive=archive)
+        result._progress = None
     if not quiet:
         _print_summary(result, folder)
     return EXIT_OK
@@ -188,13 +176,18 @@ def _scenarios(args) -> int:
     from .render.scenario_outputs import write_scenario_outputs
     from .scenarios import load_scenarios, run_scenarios
 
-    result = compile_inventory(Path(args.settings), analyses=False)
-    path = Path(args.scenarios) if args.scenarios else result.settings.scenarios
-    if path is None:
-        raise InputError("no scenario file: give --scenarios FILE or set [inputs] scenarios in the settings")
-    scenarios = load_scenarios(path, result.settings)
-    outcome = run_scenarios(result, scenarios)
-    folder = write_scenario_outputs(result, outcome, Path(args.out), report=not args.no_report)
+    from .progress import Progress
+
+    with Progress(args.quiet) as progress:
+        result = compile_inventory(Path(args.settings), progress=progress, analyses=False)
+        path = Path(args.scenarios) if args.scenarios else result.settings.scenarios
+        if path is None:
+            raise InputError("no scenario file: give --scenarios FILE or set [inputs] scenarios in the settings")
+        scenarios = load_scenarios(path, result.settings)
+        progress.stage("running the scenarios")
+        outcome = run_scenarios(result, scenarios)
+        progress.stage("writing the scenario outputs")
+        folder = write_scenario_outputs(result, outcome, Path(args.out), report=not args.no_report)
     if not args.quiet:
         _print_scenarios(result, outcome, folder)
     return EXIT_OK

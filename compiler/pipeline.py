@@ -23,6 +23,7 @@ from .errors import Finding, FindingLog, InputError, QaqcError
 from .factors import FactorLibrary, file_sha256, load_library
 from .metrics import co2_equivalent, gwp_table
 from .settings import Settings, load_settings
+from .progress import stage
 from .timeseries import SERIES_KEYS, fill_gaps
 from .units import conversion_factor
 
@@ -96,10 +97,12 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     """Compile the inventory described by ``settings`` (a path to a TOML file or a :class:`Settings`).
 
     ``setting_overrides`` replace settings keys by name (e.g. ``iterations=5000, seed=1``);
-    ``progress(done, total)`` is called during the Monte Carlo; ``analyses=False`` skips the
+    ``progress(done, total)`` is called during the Monte Carlo, and ``progress.stage(name)`` (where
+    it has one, see :mod:`compiler.progress`) as each step begins; ``analyses=False`` skips the
     uncertainty and key category analyses. Raises :class:`compiler.errors.InputError` with every
     blocking finding when the inputs cannot be compiled.
     """
+    stage(progress, "reading the inputs")
     if not isinstance(settings, Settings):
         settings = load_settings(settings, setting_overrides or None)
     library = load_library()
@@ -115,10 +118,12 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     review_log = load_review_log(settings, log, set(library.categories["category_code"]))
     surrogates = load_surrogates(settings, log)
     log.raise_if_errors()
+    stage(progress, "filling gaps in the area series")
     activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region,
                          surrogates, settings.fill_by_land_use)
     log.raise_if_errors()
 
+    stage(progress, "computing emissions and removals")
     engine = compute(activity, fires, overrides, library, settings, log)
     log.raise_if_errors()
     emissions, register = engine.emissions, engine.register
@@ -217,12 +222,15 @@ def _analyse(result: InventoryResult, progress) -> None:
     evidence = result.activity["evidence"] if "evidence" in result.activity else None
     if evidence is not None and not (evidence != "").any():
         evidence = None
+    stage(progress, "QA/QC checks")
     checks = run_checks(result, QaqcThresholds.from_mapping(result.settings.qaqc), national_totals=national,
                         evidence=evidence)
     result.finding_list.extend(f for f in checks if f not in result.finding_list)
     if any(f.severity == "error" for f in checks):
         raise QaqcError(checks)
+    stage(progress, "uncertainty (Approach 1, Monte Carlo)")
     result.uncertainty = run_uncertainty(result, progress=progress)
+    stage(progress, "key categories")
     result.key_categories = key_categories(result, result.uncertainty, national_totals=national)
     extra = list(result.uncertainty.findings) + list(result.key_categories.findings)
     result.finding_list.extend(f for f in extra if f not in result.finding_list)

@@ -76,8 +76,8 @@ def _can_fork(parallel: bool | None) -> bool:
 class ReportJob:
     """The report (HTML and PDF) written by a forked copy of this process; :meth:`finish` waits for it."""
 
-    def __init__(self, process, connection):
-        self.process, self.connection = process, connection
+    def __init__(self, process, connection, progress=None):
+        self.process, self.connection, self.progress = process, connection, progress
 
     @classmethod
     def start(cls, result, folder: Path) -> "ReportJob":
@@ -89,7 +89,7 @@ class ReportJob:
         process = context.Process(target=_report_child, args=(result, folder, send), daemon=True)
         process.start()
         send.close()
-        return cls(process, receive)
+        return cls(process, receive, getattr(result, "_progress", None))
 
     def finish(self) -> None:
         """Wait for the report; raise what the child raised (or say how it died).
@@ -97,6 +97,9 @@ class ReportJob:
         The child's formatted traceback rides along as the ``__cause__`` of the exception raised here
         (a :class:`ChildTraceback`), so ``--traceback`` shows where the report failed, not only this re-raise.
         """
+        from ..progress import stage
+
+        stage(self.progress, "laying out the report")  # the child draws nothing: this process says it
         try:
             status, payload, child_tb = self.connection.recv()
         except EOFError:
@@ -131,6 +134,7 @@ def _report_child(result, folder: Path, connection) -> None:
 
     from .report import write_report
 
+    result._progress = None  # progress is shown by the parent only
     try:
         write_report(result, folder)
         connection.send(("ok", None, ""))

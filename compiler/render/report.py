@@ -524,6 +524,9 @@ def write_report(result, folder: Path) -> RestrictedFetcher:
     """Write report.html and report.pdf; return the fetcher (its ``refused`` list names what was refused)."""
     from weasyprint import HTML
 
+    from ..progress import stage
+
+    stage(getattr(result, "_progress", None), "laying out the report")
     html = render_html(result)
     (folder / "report.html").write_text(html, encoding="utf-8")
     fetcher = RestrictedFetcher(resource_dir("report_templates"))
@@ -538,6 +541,9 @@ def write_archive(result, folder: Path) -> None:
     """report-archive.pdf: PDF/A-3b carrying emissions.csv, datapackage.json and manifest.json as attachments."""
     from weasyprint import HTML, Attachment
 
+    from ..progress import stage
+
+    stage(getattr(result, "_progress", None), "writing the PDF/A-3b archive")
     document = getattr(result, "_report_document", None)
     if document is None:
         html = (folder / "report.html").read_text(encoding="utf-8")

@@ -90,6 +90,9 @@ def _records(frame: pd.DataFrame, columns):
 
 
 def write_workbook(result, path: Path) -> None:
+    from ..progress import stage
+
+    stage(getattr(result, "_progress", None), "writing the workbook")
     s = result.settings
     wb = Workbook(write_only=True)
     base, latest = s.first_year, s.last_year
