@@ -50,3 +50,9 @@ def test_trace_takes_any_case_of_gas_and_says_what_is_missing(capsys, demo_outpu
 def test_compare_never_prints_minus_zero(capsys, demo_output):
     code, out, _ = run(capsys, "compare", str(DEMO / "previous" / "emissions.csv.gz"), str(demo_output))
     assert code == 0 and "-0.0" not in out.replace("\u2212", "-")
+
+
+def test_the_demo_monte_carlo_converges(demo_result):
+    # examples/demo/inventory.toml ships an iteration count at which the convergence check passes.
+    finding = next(f for f in demo_result.finding_list if f.check == "monte_carlo_convergence")
+    assert finding.severity == "info" and finding.message.startswith("Monte Carlo converged")
