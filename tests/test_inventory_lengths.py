@@ -74,8 +74,14 @@ def test_every_command_on_every_inventory_length(case, tmp_path, capsys):
     first, last = CASES[case]
     printed = run_every_command(cut_demo(tmp_path / "inputs", first, last), tmp_path, capsys, last)
     summary = printed["compile"]
-    if first == last:  # the year is named once
+    if first == last:  # the year is named once, in the console and in the workbook's summary
         assert summary.count(f"{last}:") == 1, summary
+        import openpyxl
+
+        sheet = openpyxl.load_workbook(tmp_path / "out" / "inventory.xlsx", read_only=True)["summary"]
+        rows = list(sheet.iter_rows(values_only=True))
+        header = next(r for r in rows if r and r[0] == "category_code")
+        assert header == ("category_code", "category_name", "gas", "unit", str(last))
     else:
         assert f"{first}:" in summary and f"{last}:" in summary
     assert "3.B.2.a" in printed["trace"]

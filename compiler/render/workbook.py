@@ -113,12 +113,16 @@ def write_workbook(result, path: Path) -> None:
     tb, tl = totals.get(base, 0.0) / 1000, totals.get(latest, 0.0) / 1000
     summary_rows.append(("Total", "all categories, gases with a GWP", "CO2-eq", "kt CO2-eq", tb, tl,
                          (tl - tb) / abs(tb) if tb else None))
-    notes = [f"{s.name} - submission {s.submission_year}, years {base}-{latest}",
+    span = f"year {base}" if base == latest else f"years {base}-{latest}"
+    notes = [f"{s.name} - submission {s.submission_year}, {span}",
              f"Factor set {s.factor_set}; GWP100 set {s.gwp}; molar masses: {s.mass_ratios}; compiled {result.compile_date} "
              f"with histosol {result.version}",
              "Tier 1 defaults are coarse; key categories deserve higher tiers; estimates must pass the national QA/QC plan.",
              "Notation keys: " + "; ".join(f"{k} = {v}" for k, v in NOTATION_KEYS.items())]
-    _sheet(wb, "summary", ["category_code", "category_name", "gas", "unit", f"{base}", f"{latest}", "change"],
+    header = ["category_code", "category_name", "gas", "unit", f"{base}", f"{latest}", "change"]
+    if base == latest:  # one year: one column of figures, no change
+        header, summary_rows = header[:5], [r[:5] for r in summary_rows]
+    _sheet(wb, "summary", header,
            summary_rows, {f"{base}": FORMATS["kt"], f"{latest}": FORMATS["kt"], "change": FORMATS["pct"]},
            {"category_name": 40, "category_code": 14}, notes)
 
