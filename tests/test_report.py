@@ -209,6 +209,7 @@ def test_no_working_notes_in_any_output(archived, demo_result, capsys):
     texts["report.pdf"] = pdf_text_of(archived / "report.pdf")
     _print_summary(demo_result, archived)
     texts["console"] = capsys.readouterr().out
+    assert "row 0," not in texts["report.html"] and "row 0," not in texts["console"]  # "filled year, no input row"
     for name, text in texts.items():
         for note in WORKING_NOTES:
             assert note.lower() not in text.lower(), (name, note)
