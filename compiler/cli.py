@@ -36,8 +36,9 @@ def _parser() -> argparse.ArgumentParser:
     c.add_argument("--quiet", action="store_true", help="print nothing but errors")
     _report_options(c)
 
-    k = sub.add_parser("check", help="validate all inputs and print every finding; writes nothing")
+    k = sub.add_parser("check", help="validate all inputs and print the findings by check; writes nothing")
     k.add_argument("settings", help="settings file (TOML)")
+    k.add_argument("--all", action="store_true", help="print every finding (default: the first few of each check)")
 
     r = sub.add_parser("compare", help="recalculations: differences between two submissions, with their causes")
     r.add_argument("previous", help="output folder or emissions.csv(.gz) of the previous submission")
@@ -48,7 +49,8 @@ def _parser() -> argparse.ArgumentParser:
     t = sub.add_parser("trace", help="show how one reported number was made")
     t.add_argument("output", help="output folder of a compile")
     t.add_argument("--category", required=True, help="category code, e.g. 3.B.2.a")
-    t.add_argument("--gas", required=True, choices=["CO2", "CH4", "N2O", "CO"])
+    t.add_argument("--gas", required=True, type=str.upper, choices=["CO2", "CH4", "N2O", "CO"],
+                   help="CO2, CH4, N2O or CO (any case)")
     t.add_argument("--year", required=True, type=int)
     t.add_argument("--region", help="only this region")
 
@@ -111,7 +113,7 @@ def _run(args) -> int:
     if args.command == "trace":
         return _trace(args)
     if args.command == "check":
-        return _check(Path(args.settings))
+        return _check(Path(args.settings), args.all)
     if args.command == "demo":
         from .resources import resource_dir
 
@@ -127,31 +129,19 @@ def _run(args) -> int:
     return code
 
 
-class _Progress:
-    """A one-line progress bar on stderr, only on a terminal."""
-
-    def __init__(self, label: str, enabled: bool):
-        self.label, self.enabled, self.shown = label, enabled and sys.stderr.isatty(), False
-
-    def __call__(self, done: int, total: int) -> None:
-        if not self.enabled or total <= 0:
-            return
-        width = 30
-        filled = int(width * done / total)
-        sys.stderr.write(f"\r{self.label} [{'#' * filled}{'.' * (width - filled)}] {done}/{total}")
-        sys.stderr.flush()
-        self.shown = True
-        if done >= total:
-            sys.stderr.write("\n")
-
-
 def _compile(settings: Path, out: Path, quiet: bool, report: bool, archive: bool, overrides: dict) -> int:
     from .pipeline import compile_inventory
 
-    result = compile_inventory(settings, progress=_Progress("Monte Carlo", not quiet), **overrides)
+    from .progress import Progress
+
     if archive and not report:
         raise InputError("--archive needs the report: drop --no-report")
-    folder = result.write(out, report=report, archive=archive)
+    with Progress(quiet) as progress:
+        result = compile_inventory(settings, progress=progress, **overrides)
+        result._progress = progress
+        progress.stage("writing the CSV tables")
+        folder = result.write(out, report=report, archive=archive)
+        result._progress = None
     if not quiet:
         _print_summary(result, folder)
     return EXIT_OK
@@ -184,13 +174,19 @@ def _scenarios(args) -> int:
     from .render.scenario_outputs import write_scenario_outputs
     from .scenarios import load_scenarios, run_scenarios
 
-    result = compile_inventory(Path(args.settings), analyses=False)
-    path = Path(args.scenarios) if args.scenarios else result.settings.scenarios
-    if path is None:
-        raise InputError("no scenario file: give --scenarios FILE or set [inputs] scenarios in the settings")
-    scenarios = load_scenarios(path, result.settings)
-    outcome = run_scenarios(result, scenarios)
-    folder = write_scenario_outputs(result, outcome, Path(args.out), report=not args.no_report, scenario_file=path)
+    from .progress import Progress
+
+    with Progress(args.quiet) as progress:
+        result = compile_inventory(Path(args.settings), progress=progress, analyses=False)
+        path = Path(args.scenarios) if args.scenarios else result.settings.scenarios
+        if path is None:
+            raise InputError("no scenario file: give --scenarios FILE or set [inputs] scenarios in the settings")
+        scenarios = load_scenarios(path, result.settings)
+        progress.stage("running the scenarios")
+        outcome = run_scenarios(result, scenarios)
+        progress.stage("writing the scenario outputs")
+        folder = write_scenario_outputs(result, outcome, Path(args.out), report=not args.no_report,
+                                        scenario_file=path)
     if not args.quiet:
         _print_scenarios(result, outcome, folder)
     return EXIT_OK
@@ -228,7 +224,11 @@ def _compare(args) -> int:
           "strata added / removed; allocation change")
     cols = ["category_code", "gas", "previous_co2eq_t", "current_co2eq_t", "difference_co2eq_t", "difference_pct",
             *PARTS]
-    with pd.option_context("display.width", 250, "display.max_columns", None, "display.float_format", "{:,.1f}".format):
+    def one_decimal(value: float) -> str:  # never "-0.0"
+        text = f"{value:,.1f}"
+        return "0.0" if text == "-0.0" else text
+
+    with pd.option_context("display.width", 250, "display.max_columns", None, "display.float_format", one_decimal):
         print(view[cols].to_string(index=False) if not view.empty else "  no differences")
     total = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum().loc[year]
     print(f"Total {year}: {total['previous_co2eq_t'] / 1000:,.1f} -> {total['current_co2eq_t'] / 1000:,.1f} kt CO2-eq")
@@ -244,12 +244,24 @@ def _trace(args) -> int:
     return EXIT_OK
 
 
-def _check(settings: Path) -> int:
+CHECK_SHOWN = {"error": 10, "warning": 3, "info": 3}  # findings printed per check by `histosol check`
+
+
+def _check(settings: Path, every: bool = False) -> int:
     from .pipeline import check_inventory
 
     findings = check_inventory(settings)
-    for f in findings:
-        print(f.render())
+    groups: dict[tuple, list] = {}
+    for f in findings:  # by severity and check, in the order they were raised
+        groups.setdefault((f.severity, f.check), []).append(f)
+    order = {"error": 0, "warning": 1, "info": 2}
+    for (severity, check), items in sorted(groups.items(), key=lambda kv: order.get(kv[0][0], 3)):
+        shown = items if every else items[:CHECK_SHOWN.get(severity, 3)]
+        for f in shown:
+            print(f.render())
+        if len(items) > len(shown):
+            print(f"  ... and {len(items) - len(shown)} more {severity} findings of [{check}] "
+                  f"({len(items)} in all; --all lists every one)")
     errors = sum(f.severity == "error" for f in findings)
     warnings = sum(f.severity == "warning" for f in findings)
     print(f"{errors} errors, {warnings} warnings, {len(findings) - errors - warnings} notes")
@@ -270,7 +282,7 @@ def _factors(args) -> int:
                           ("soil_status", args.soil_status)):
         if value:
             reg = reg[(reg[column] == value) | (reg[column] == "")]
-    cols = ["factor_id", "quantity", "value", "unit", "ci_low", "ci_high", "table", "verification", "row_label"]
+    cols = ["factor_id", "quantity", "value", "unit", "ci_low", "ci_high", "table", "row_label"]
     if reg.empty:
         raise InputError("no factor matches these filters")
     if args.csv:
@@ -279,19 +291,35 @@ def _factors(args) -> int:
     view = reg[cols].copy()
     view["95% interval"] = [("" if pd.isna(lo) else f"{lo:g} to {hi:g}") for lo, hi in zip(view["ci_low"], view["ci_high"])]
     view["value"] = view["value"].map(lambda v: f"{v:g}")
-    view = view[["factor_id", "quantity", "value", "unit", "95% interval", "table", "verification", "row_label"]]
-    with pd.option_context("display.max_rows", None, "display.width", 250, "display.max_colwidth", 60):
-        print(view.to_string(index=False))
-    n_mem = int((reg["verification"] == "from_memory").sum())
-    print(f"\n{len(reg)} factors; {n_mem} marked from_memory (not yet checked against the published table).")
-    # Rows whose readings of the published table disagree: the note says what differs (factor_tables/).
-    noted = reg["verification_note"].fillna("").str.startswith("conflict")
-    conflicts = reg[(reg["verification"] == "from_memory") & noted]
-    if not conflicts.empty:
-        print(f"\n{len(conflicts)} of them with a known conflict; check these against your copy of the table:")
-        for fid, note in zip(conflicts["factor_id"], conflicts["verification_note"]):
-            print(f"  {fid}: {note}")
+    view = view[["factor_id", "quantity", "value", "unit", "95% interval", "table", "row_label"]]
+    view = view.rename(columns={"row_label": "row"})
+    # One block per quantity; the row label takes what is left of FACTORS_WIDTH, wrapped onto further lines.
+    import textwrap
+
+    shown = [c for c in view.columns if c != "quantity"]
+    widths = {c: max(view[c].astype(str).str.len().max(), len(c)) for c in shown if c != "row"}
+    widths["row"] = max(FACTORS_WIDTH - sum(w + 2 for w in widths.values()), 24)
+
+    def line(cells) -> str:
+        return "  ".join(str(v).rjust(widths[c]) if c == "value" else str(v).ljust(widths[c])
+                         for c, v in zip(shown, cells)).rstrip()
+
+    print(line(shown))
+    for quantity, block in view.groupby("quantity", sort=False):
+        print(f"{quantity}:")
+        for cells in block[shown].itertuples(index=False):
+            *head, row = cells
+            parts = textwrap.wrap(str(row), widths["row"]) or [""]
+            print(line([*head, parts[0]]))
+            for more in parts[1:]:
+                print(line([""] * len(head) + [more]))
+    print(f"\n{len(reg)} factors. The shipped values have not been checked against the published text by the "
+          "tool's authors:\ncheck each against your copy of the guidance before official use and record the "
+          "result in a factor\nreview log ([inputs] factor_review); --csv gives the full row labels and citations.")
     return EXIT_OK
+
+
+FACTORS_WIDTH = 118  # characters of a `histosol factors` line
 
 
 if __name__ == "__main__":

@@ -56,10 +56,14 @@ class Finding:
             parts.append(self.file.replace("\\", "/").rsplit("/", 1)[-1] if short else self.file)
         if self.sheet:
             parts.append(f"sheet {self.sheet}")
-        if self.row is not None:
+        if self.row == 0:  # a record the compiler made (a gap-filled year): no row of the file
+            parts.append("filled year, no input row")
+        elif self.row is not None:
             parts.append(f"row {self.row}")
         if self.column:
-            parts.append(f"column {self.column}")
+            # A key of the settings file (section.key) is a setting, not a column.
+            is_setting = "." in self.column and (not self.file or self.file.endswith(".toml"))
+            parts.append(f"{'setting' if is_setting else 'column'} {self.column}")
         return ", ".join(parts)
 
     def render(self, short: bool = False) -> str:
@@ -100,17 +104,19 @@ class InputError(CompilerError, ValueError):
 
     exit_code = 2
 
-    def __init__(self, findings: Iterable[Finding] | Finding | str):
+    def __init__(self, findings: Iterable[Finding] | Finding | str, head: str = ""):
         if isinstance(findings, str):
             findings = [Finding("error", "input", findings)]
         elif isinstance(findings, Finding):
             findings = [findings]
         self.findings = [f for f in findings]
+        self.head = head
         super().__init__(self.render())
 
     def render(self) -> str:
         errors = [f for f in self.findings if f.severity == "error"]
-        head = f"{len(errors)} blocking problem{'s' if len(errors) != 1 else ''} in the inputs; nothing was written."
+        head = self.head or (f"{len(errors)} blocking problem{'s' if len(errors) != 1 else ''} in the inputs; "
+                             "nothing was written.")
         return "\n".join([head] + [f.render() for f in errors])
 
 

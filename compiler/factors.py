@@ -308,3 +308,10 @@ def unit_kind_ok(unit: str, quantity: str) -> str:
     except ValueError as exc:
         return str(exc)
     return ""
+
+
+def unchecked_factors(factors_used: pd.DataFrame) -> pd.DataFrame:
+    """Shipped factors in use that the agency has not marked ``agrees`` in its factor review log."""
+    status = (factors_used["agency_check"] if "agency_check" in factors_used
+              else pd.Series("not yet checked", index=factors_used.index))
+    return factors_used[(factors_used["factor_set"] != "override") & (status != "agrees")]

@@ -436,7 +436,7 @@ def key_categories(result, uncertainty=None, national_totals: pd.DataFrame | Non
         for code, gas in table.loc[table["tier1_flag"], ["category_code", "gas"]].drop_duplicates().itertuples(
                 index=False):
             findings.append(Finding("warning", "key_category_tier", f"{code} {gas}: {TIER1_MESSAGE}",
-                                    column="category_code", found=f"{code} {gas}", category_code=code, gas=gas))
+                                    found=f"{code} {gas}", category_code=code, gas=gas))
         order = {name: i for i, (name, _) in enumerate(runs)}
         table = (table.assign(_run=table["run"].map(order))
                  .sort_values(["_run", "level_latest"], ascending=[True, False], kind="stable")

@@ -28,6 +28,7 @@ import pandas as pd
 
 from .allocation_schemes import SCHEME_NAMES
 from .reporting_tables import reporting_tables
+from .factors import unchecked_factors
 
 SECTIONS = ("Description", "Methodological issues", "Uncertainty and time-series consistency",
             "Category-specific QA/QC", "Recalculations", "Planned improvements")
@@ -264,11 +265,13 @@ def _improvement_text(result, code, used) -> str:
         if gases:
             items.append(f"{code} is a key category for {_join(gases)} and rests on Tier 1 defaults: moving to "
                          "country-specific factors (Tier 2 or higher) is good practice")
-    unverified = used[used["verification"] == "from_memory"]
+    unverified = unchecked_factors(used)
     if not unverified.empty:
         n = len(unverified)
-        items.append(f"{n} {'factors' if n > 1 else 'factor'} in use {'are' if n > 1 else 'is'} to be checked against "
-                     f"the published tables before official use ({_join(sorted(unverified['factor_id']))})")
+        items.append(f"{n} shipped {'factors' if n > 1 else 'factor'} in use {'are' if n > 1 else 'is'} not yet "
+                     "checked by the agency against its copy of the guidance (factor review log) and "
+                     f"{'are' if n > 1 else 'is'} to be checked before official use "
+                     f"({_join(sorted(unverified['factor_id']))})")
     if not items:
         return "No improvement is planned for this category."
     return "; ".join(items) + "."

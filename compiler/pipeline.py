@@ -26,6 +26,7 @@ from .errors import Finding, FindingLog, InputError, QaqcError
 from .factors import FactorLibrary, file_sha256, load_library
 from .metrics import co2_equivalent, gwp_table
 from .settings import Settings, load_settings
+from .progress import stage
 from .schema import FINDING_COLUMNS, GAP_FILL_COLUMNS, SERIES_KEYS
 from .timeseries import fill_gaps
 from .units import conversion_factor
@@ -90,10 +91,12 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     """Compile the inventory described by ``settings`` (a path to a TOML file or a :class:`Settings`).
 
     ``setting_overrides`` replace settings keys by name (e.g. ``iterations=5000, seed=1``);
-    ``progress(done, total)`` is called during the Monte Carlo; ``analyses=False`` skips the
+    ``progress(done, total)`` is called during the Monte Carlo, and ``progress.stage(name)`` (where
+    it has one, see :mod:`compiler.progress`) as each step begins; ``analyses=False`` skips the
     uncertainty and key category analyses. Raises :class:`compiler.errors.InputError` with every
     blocking finding when the inputs cannot be compiled.
     """
+    stage(progress, "reading the inputs")
     if not isinstance(settings, Settings):
         settings = load_settings(settings, setting_overrides or None)
     library = with_allocation(load_library(), settings.allocation)
@@ -110,6 +113,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     surrogates = load_surrogates(settings, log)
     previous, national = _load_other_inputs(settings, log)
     log.raise_if_errors()
+    stage(progress, "filling gaps in the area series")
     activity = fill_gaps(activity, settings.years, settings.fill, settings.trend_years, log, settings.fill_by_region,
                          surrogates, settings.fill_by_land_use)
     log.raise_if_errors()
@@ -122,6 +126,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
         fire_keys = [k for k in ["year", *SERIES_KEYS, "fire_type", "burned_ha"] if k in fires]
         fires = fires.iloc[np.lexsort([_sort_codes(fires[k]) for k in reversed(fire_keys)])]
 
+    stage(progress, "computing emissions and removals")
     engine = compute(activity, fires, overrides, library, settings, log)
     log.raise_if_errors()
     emissions, register = engine.emissions, engine.register
@@ -244,12 +249,15 @@ def _analyse(result: InventoryResult, progress, national: pd.DataFrame | None = 
     evidence = result.activity["evidence"] if "evidence" in result.activity else None
     if evidence is not None and not (evidence != "").any():
         evidence = None
+    stage(progress, "QA/QC checks")
     checks = run_checks(result, QaqcThresholds.from_mapping(result.settings.qaqc), national_totals=national,
                         evidence=evidence)
     _merge_findings(result.finding_list, checks)
     if any(f.severity == "error" for f in checks):
         raise QaqcError(checks)
+    stage(progress, "uncertainty (Approach 1, Monte Carlo)")
     result.uncertainty = run_uncertainty(result, progress=progress)
+    stage(progress, "key categories")
     result.key_categories = key_categories(result, result.uncertainty, national_totals=national)
     extra = list(result.uncertainty.findings) + list(result.key_categories.findings)
     _merge_findings(result.finding_list, extra)
@@ -305,7 +313,23 @@ def _check_review(emissions, review, settings, log) -> None:
                     expected="an override for every stratum that uses this factor")
 
 
+AGENCY_CHECK = ("agrees", "differs", "not yet checked", "own factor")
+
+
 def _attach_review(factors: pd.DataFrame, review: pd.DataFrame) -> pd.DataFrame:
+    """The factor review log's last entry per factor, and ``agency_check``: the agency's status of each factor.
+
+    ``agency_check`` is what the outputs print: ``agrees`` / ``differs`` (the review log's result),
+    ``not yet checked`` (a shipped value the agency has not checked against its copy of the guidance),
+    ``own factor`` (an override the agency supplied with its citation).
+    """
+    factors = _with_review(factors, review)
+    status = factors["review_result"].where(factors["review_result"] != "", "not yet checked")
+    factors["agency_check"] = status.where(factors["factor_set"] != "override", "own factor")
+    return factors
+
+
+def _with_review(factors: pd.DataFrame, review: pd.DataFrame) -> pd.DataFrame:
     factors = factors.copy()
     for col in ("review_result", "reviewed_by", "reviewed_on", "reviewed_against"):
         factors[col] = ""

@@ -86,29 +86,29 @@ class QaqcThresholds:
     the settings section ``[qaqc]``, one key per field (:func:`threshold_schema`).
     """
 
+    # Repository notes (never printed): the percentages, floors and the area tolerance are common practice,
+    # no source; the insignificance limits are decision 18/CMA.1 annex para. 32, from memory.
     year_on_year_area_pct: float = _threshold(
-        25.0, "year-on-year change of a stratum's area above which it is flagged [%] (common practice, no source)")
+        25.0, "year-on-year change of a stratum's area above which it is flagged [%]")
     year_on_year_emission_pct: float = _threshold(
-        25.0, "year-on-year change of a category's CO2-eq above which it is flagged [%] (common practice, no source)")
+        25.0, "year-on-year change of a category's CO2-eq above which it is flagged [%]")
     year_on_year_area_floor_ha: float = _threshold(
-        100.0, "a flagged area change smaller than this is info, not warning [ha] (common practice, no source)")
+        100.0, "a flagged area change smaller than this is info, not warning [ha]")
     year_on_year_emission_floor_t: float = _threshold(
-        1000.0, "a flagged emission change smaller than this is info, not warning [t CO2-eq] "
-                "(common practice, no source)")
+        1000.0, "a flagged emission change smaller than this is info, not warning [t CO2-eq]")
     area_balance_tolerance_pct: float = _threshold(
         0.5, "change of a region's total organic-soil area (or fall of a rewetted stratum) accepted without a "
-             "declared conversion, as a share of the earlier year's area [%] (rounding of area data; "
-             "common practice, no source)")
+             "declared conversion, as a share of the earlier year's area [%] (rounding of area data)")
     sums_relative_tolerance: float = _threshold(
         1e-6, "relative difference accepted between a sum and its parts, and in recomputed row arithmetic [-]")
     insignificance_pct: float = _threshold(
         0.05, "an NE is insignificant below this share of the national total excluding the land sector [%] "
-              "(decision 18/CMA.1 annex para. 32, from memory)")
+              "(decision 18/CMA.1 annex para. 32)")
     insignificance_kt: float = _threshold(
-        500.0, "... and below this size [kt CO2-eq] (decision 18/CMA.1 annex para. 32, from memory)")
+        500.0, "... and below this size [kt CO2-eq] (decision 18/CMA.1 annex para. 32)")
     insignificance_aggregate_pct: float = _threshold(
         0.1, "all NE taken as insignificant together stay below this share of the national total excluding the "
-             "land sector [%] (decision 18/CMA.1 annex para. 32, from memory)")
+             "land sector [%] (decision 18/CMA.1 annex para. 32)")
 
     def __post_init__(self):
         for f in fields(self):
@@ -142,22 +142,28 @@ class Check(NamedTuple):
     source: str
 
 
-TABLE_6_1 = "2006 IPCC Guidelines Vol. 1 Ch. 6 Table 6.1, general QC procedures (from memory)"
+# What the outputs print as each check's basis. Repository notes on these references (never printed): the
+# chapter and table references of the 2006 IPCC Guidelines, WS2013 Ch. 3 and decision 18/CMA.1 were entered
+# from memory; the allowances of area_balance and rewetted_area_shrinks, the upper bound of an NE and the
+# evidence and largest-assumed-stratum checks are rules our own; the thresholds, floors and the share of
+# assumed emissions are common practice, no source.
+TABLE_6_1 = "2006 IPCC Guidelines Vol. 1 Ch. 6 Table 6.1, general QC procedures"
 CHECKS: tuple[Check, ...] = (
     Check("area_balance", "warning",
           "a region's total organic-soil area changes between consecutive years by more than the land newly "
           "declared as converted that year plus a tolerance",
-          f"{TABLE_6_1}: time-series consistency of activity data; allowance rule our own"),
+          f"{TABLE_6_1}: time-series consistency of activity data; tolerance [qaqc] area_balance_tolerance_pct"),
     Check("rewetted_area_shrinks", "warning",
           "the rewetted area of a region and stratum falls between years (re-drainage?) by more than the land "
           "newly declared as converted from its land use plus a tolerance",
-          f"{TABLE_6_1}; WS2013 Ch. 3 (re-drained land is drained land again, from memory); rule our own"),
+          f"{TABLE_6_1}; 2013 Wetlands Supplement Ch. 3 (re-drained land is drained land again); tolerance "
+          "[qaqc] area_balance_tolerance_pct"),
     Check("year_on_year_area", "warning",
           "a stratum's area changes year on year by more than the threshold (info below the absolute floor)",
-          f"{TABLE_6_1}: unexplained trends; threshold and floor common practice, no source"),
+          f"{TABLE_6_1}: unexplained trends; threshold and floor in the settings ([qaqc])"),
     Check("year_on_year_emissions", "warning",
           "a category's CO2-eq (per gas) changes year on year by more than the threshold (info below the floor)",
-          f"{TABLE_6_1}: unexplained trends; threshold and floor common practice, no source"),
+          f"{TABLE_6_1}: unexplained trends; threshold and floor in the settings ([qaqc])"),
     Check("implied_emission_factor", "error",
           "a category's implied emission factor (emissions / area) lies outside the range of its strata's",
           f"{TABLE_6_1}: emissions calculated correctly (internal consistency)"),
@@ -167,16 +173,16 @@ CHECKS: tuple[Check, ...] = (
           f"{TABLE_6_1}: reproduce the emission calculations"),
     Check("override_validity_gaps", "warning",
           "strata that use an override fall back to the default in years between override validity periods",
-          "2006 IPCC Guidelines Vol. 1 Ch. 5, time-series consistency (from memory)"),
+          "2006 IPCC Guidelines Vol. 1 Ch. 5, time-series consistency"),
     Check("override_partial_series", "info",
           "strata that use an override use the default in years before or after its validity",
-          "2006 IPCC Guidelines Vol. 1 Ch. 5, time-series consistency: splice or extend (from memory)"),
+          "2006 IPCC Guidelines Vol. 1 Ch. 5, time-series consistency: splice or extend"),
     Check("estimated_ne_with_area", "warning",
           "strata with area carry pathways reported NE; the justification given is shown",
-          "2006 IPCC Guidelines Vol. 1 Ch. 8, notation keys (from memory)"),
+          "2006 IPCC Guidelines Vol. 1 Ch. 8, notation keys"),
     Check("no_with_area", "error",
           "a category and gas is reported NO although strata with area fall in it",
-          "2006 IPCC Guidelines Vol. 1 Ch. 8: NO only where the activity does not occur (from memory)"),
+          "2006 IPCC Guidelines Vol. 1 Ch. 8: NO only where the activity does not occur"),
     Check("override_units", "error",
           "a row using an override stores a unit that does not convert to its quantity's unit, or differs from "
           "the override's",
@@ -188,30 +194,30 @@ CHECKS: tuple[Check, ...] = (
           "strata do not add up to categories, or categories to the total (beyond the relative tolerance); a "
           "category cell holds both or neither of a number and a notation key",
           f"{TABLE_6_1}: aggregation from lower to higher reporting levels"),
-    Check("from_memory_in_use", "info",
-          "factors in use whose value is marked from_memory, per factor table",
-          "histosol factor provenance rule (STYLE.md); no outside source"),
+    Check("factors_not_checked", "info",
+          "shipped factors in use that the agency has not yet checked against its copy of the guidance, per "
+          "factor table",
+          "the factor review log ([inputs] factor_review); see the cautions"),
     Check("completeness", "error",
           "a land use x soil status x pathway x year of the inputs has neither an estimate nor a notation key",
           f"{TABLE_6_1}: completeness"),
     Check("notation_justification", "warning",
           "a notation key (stratum row or category cell) has no reason",
-          "2006 IPCC Guidelines Vol. 1 Ch. 8: notation keys explained (from memory)"),
+          "2006 IPCC Guidelines Vol. 1 Ch. 8: notation keys explained"),
     Check("ne_insignificance", "warning",
-          "an NE is tested against the insignificance rule with an upper bound of its size; flagged unless shown "
-          "insignificant (info)",
+          "an NE is tested against the insignificance rule with an upper bound of its size (the largest upper "
+          "95 % limit of the pathway's factors times the area); flagged unless shown insignificant (info)",
           "UNFCCC MPGs (decision 18/CMA.1) para. 32: 0.05 % of national total excluding LULUCF and 500 kt "
-          "CO2-eq, aggregate 0.1 % (from memory); upper bound our own"),
+          "CO2-eq, aggregate 0.1 %"),
     Check("assumption_evidence", "error",
           "evidence given for an activity row is not one of measured | mapped | statistics | assumed",
-          "histosol input rule; no outside source"),
+          "activity data column evidence (see the input formats)"),
     Check("assumption_share", "info",
           "share of emissions (|CO2-eq|) resting on strata whose area is assumed",
-          "2006 IPCC Guidelines Vol. 1 Ch. 6, documentation of assumptions (from memory); share common practice, "
-          "no source"),
+          "2006 IPCC Guidelines Vol. 1 Ch. 6, documentation of assumptions"),
     Check("assumption_largest", "warning",
           "the largest stratum by emissions whose area is assumed",
-          "common practice, no source"),
+          "2006 IPCC Guidelines Vol. 1 Ch. 6, documentation of assumptions"),
 )
 # Not repeated here: override_outside_default_interval (an override outside the 95 % interval of the default
 # it replaces) runs at compile time in compiler.pipeline; its warnings are in result.findings.
@@ -462,7 +468,8 @@ def _jumps(wide: pd.DataFrame, pct: float, floor: float) -> pd.DataFrame:
     with np.errstate(divide="ignore", invalid="ignore"):
         relative = np.where(np.abs(prev) > 0, np.abs(change) / np.abs(prev) * 100.0,
                             np.where(np.abs(change) > 0, np.inf, 0.0))
-    i, j = np.nonzero(~np.isnan(prev) & (relative > pct))
+    # "Above" the threshold: a change of exactly pct % (up to rounding of the division) is not flagged.
+    i, j = np.nonzero(~np.isnan(prev) & (relative > pct * (1 + 1e-9)))
     keys = wide.index[i].to_frame(index=False) if len(i) else pd.DataFrame(columns=list(wide.index.names))
     out = keys.reset_index(drop=True).assign(
         year=np.asarray(wide.columns)[j].astype(int), before=prev[i, j], after=now[i, j], change=change[i, j],
@@ -921,18 +928,24 @@ def check_sums(result, thresholds: QaqcThresholds) -> list[Finding]:
 # --- 10: provenance -------------------------------------------------------------------------------------
 
 
-def check_from_memory_in_use(result, thresholds: QaqcThresholds) -> list[Finding]:
-    """Info: factors in use whose value is marked ``from_memory``, one finding per factor table."""
+def check_factors_not_checked(result, thresholds: QaqcThresholds) -> list[Finding]:
+    """Info: shipped factors in use that the agency has not checked (factor review log), one finding per table.
+
+    The agency's status is ``factors_used.agency_check`` (compiler.pipeline): a factor whose review log entry
+    says ``agrees`` is not listed; overrides are the agency's own.
+    """
     fu = result.factors_used
-    unverified = fu[fu["verification"] == "from_memory"]
+    status = fu["agency_check"] if "agency_check" in fu else pd.Series("not yet checked", index=fu.index)
+    unchecked = fu[(status == "not yet checked") & (fu["factor_set"] != "override")]
     out = []
-    for origin, g in unverified.groupby("origin", sort=True):  # factor tables: a handful
+    for origin, g in unchecked.groupby("origin", sort=True):  # factor tables: a handful
         ids = sorted(g["factor_id"])
         out.append(Finding(
-            "info", "from_memory_in_use",
-            f"{len(ids)} factors in use from {origin} are marked from_memory: check them against the published "
-            f"table before official use ({', '.join(ids)})", file=f"factor_tables/{origin}", column="verification",
-            found="from_memory", expected="checked"))
+            "info", "factors_not_checked",
+            f"{len(ids)} shipped factors in use from {origin} have not yet been checked by the agency against its "
+            f"copy of the guidance: check each before official use and record the result in the factor review log "
+            f"([inputs] factor_review) ({', '.join(ids)})", file=f"factor_tables/{origin}",
+            found="not yet checked", expected="agrees"))
     return out
 
 
@@ -1233,7 +1246,7 @@ def check_assumptions(result, thresholds: QaqcThresholds, evidence: pd.Series | 
 CHECK_FUNCTIONS: tuple[Callable, ...] = (
     check_area_balance, check_rewetted_area_shrinks, check_year_on_year_area, check_year_on_year_emissions,
     check_implied_emission_factor, check_row_arithmetic, check_override_validity, check_estimated_ne_with_area,
-    check_no_with_area, check_override_units, check_duplicated_strata, check_sums, check_from_memory_in_use,
+    check_no_with_area, check_override_units, check_duplicated_strata, check_sums, check_factors_not_checked,
     check_completeness, check_notation_justification,
 )
 

@@ -94,9 +94,8 @@ EXPORT_COLUMNS = [
 GAP_FILL_COLUMNS = [*SERIES_KEYS, "year", "area_ha", "activity_source", "fill_basis"]
 # factors.csv: every factor used, with its source and locator (what a reviewer's trace reads).
 FACTOR_COLUMNS = ["factor_id", "factor_set", "quantity", *FACTOR_KEYS, "value", "unit", "ci_low", "ci_high", "tier",
-                  "verification", "verification_note", "source_id", "citation", "table", "row_label", "page",
-                  "region", "first_year", "last_year", "review_result", "reviewed_by", "reviewed_on",
-                  "reviewed_against"]
+                  "agency_check", "source_id", "citation", "table", "row_label", "page",
+                  "region", "first_year", "last_year", "reviewed_by", "reviewed_on", "reviewed_against"]
 FACTOR_NUMBERS = ("value", "ci_low", "ci_high")
 # The findings table (workbook, check).
 FINDING_COLUMNS = ["severity", "check", "file", "sheet", "row", "column", "message", "found", "expected",

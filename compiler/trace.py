@@ -21,7 +21,7 @@ def load_outputs(folder: str | Path) -> tuple[pd.DataFrame, pd.DataFrame]:
     missing = [str(p) for p in files.values() if not p.is_file()]
     if missing:
         raise InputError([Finding("error", "trace", "not an output folder of this tool (file missing)",
-                                  file=", ".join(missing))])
+                                  file=", ".join(missing))], head="nothing to trace: not an output folder.")
     emissions = pd.read_csv(files["emissions.csv"], keep_default_na=False,
                             na_values={c: [""] for c in ("emission_t", "co2eq_t", "factor_value", "parameter_value",
                                                          "area_ha", "area_basis_ha", "conversion", "emission_basis_t")})
@@ -59,6 +59,18 @@ def _fmt(v, digits=6) -> str:
     return f"{v:,.{digits}g}" if abs(v) < 1e-3 and v != 0 else f"{v:,.{digits}f}".rstrip("0").rstrip(".")
 
 
+def _tonnes(v) -> str:
+    """Tonnes to a sensible precision: 0.1 t from 1,000 t, 0.001 t from 1 t, four significant digits below."""
+    if v is None or (isinstance(v, float) and np.isnan(v)):
+        return ""
+    size = abs(v)
+    if size >= 1000:
+        return f"{v:,.1f}"
+    if size >= 1:
+        return f"{v:,.3f}"
+    return "0" if v == 0 else f"{v:.4g}"
+
+
 def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, gas: str, year: int,
                region: str | None = None) -> tuple[str, float]:
     """The trace as text and the total it ends with [t of gas]."""
@@ -66,7 +78,8 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
     where = f"{category} {gas} {year}" + (f", region {region}" if region else "")
     if rows.empty:
         raise InputError([Finding("error", "trace", f"nothing reported for {where}",
-                                  expected="a category, gas and year present in emissions.csv")])
+                                  expected="a category, gas and year present in emissions.csv")],
+                         head=f"nothing to trace: emissions.csv has no row for {where}.")
     est = rows[rows["notation_key"] == ""].copy()
     for column in ("area_ha", "area_basis_ha", "factor_value", "parameter_value", "emission_basis_t", "conversion",
                    "emission_t", "co2eq_t"):  # blank cells (no area for off-site peat rows) read as NaN
@@ -102,7 +115,8 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
         if fac is not None:
             source = f"{fac['citation']}; {fac['table']} {fac['row_label']}".strip("; ")
         lines.append(f"    factor {r['factor_id']} = {_fmt(r['factor_value'])} {r['factor_unit']} ({r['tier']}"
-                     + (f", {fac['verification']}" if fac is not None else "") + ")")
+                     + (f", agency check: {fac['agency_check']}" if fac is not None and "agency_check" in fac
+                        else "") + ")")
         if source:
             lines.append(f"      source: {source}")
         if r["parameter_id"] and not offsite:
@@ -114,15 +128,16 @@ def trace_text(emissions: pd.DataFrame, factors: pd.DataFrame, category: str, ga
                          f"({r['emission_basis'][2:]} -> {gas}) = {_fmt(r['emission_t'])} t {gas}")
         elif r["pathway"].startswith("fire"):
             lines.append(f"    {_fmt(r['area_ha'])} x {_fmt(r['parameter_value'])} x {_fmt(r['factor_value'])} x "
-                         f"{_fmt(r['conversion'], 9)} = {_fmt(r['emission_t'])} t {gas}")
+                         f"{_fmt(r['conversion'], 9)} = {_tonnes(r['emission_t'])} t {gas}")
         else:
             ratio = r["emission_t"] / r["emission_basis_t"] if r["emission_basis_t"] else 1.0
             lines.append(f"    {_fmt(r['area_basis_ha'])} ha x {_fmt(r['factor_value'])} {r['factor_unit']} = "
-                         f"{_fmt(r['emission_basis_t'])} {r['emission_basis']}; x {_fmt(ratio, 9)} "
-                         f"({r['emission_basis'][2:]} -> {gas}) = {_fmt(r['emission_t'])} t {gas}")
+                         f"{_tonnes(r['emission_basis_t'])} {r['emission_basis']}; x {_fmt(ratio, 9)} "
+                         f"({r['emission_basis'][2:]} -> {gas}) = {_tonnes(r['emission_t'])} t {gas}")
     total = float(est["emission_t"].sum())
     co2eq = est["co2eq_t"].sum(min_count=1)
-    lines.append(f"Sum of {len(est)} rows: {_fmt(total)} t {gas}" + ("" if np.isnan(co2eq) else f" = {_fmt(co2eq)} t CO2-eq"))
+    lines.append(f"Sum of {len(est)} rows: {_tonnes(total)} t {gas}"
+                 + ("" if np.isnan(co2eq) else f" = {_tonnes(co2eq)} t CO2-eq"))
     others = rows[rows["notation_key"] != ""]
     if not others.empty:
         lines.append("Also in this cell, without estimate: " + "; ".join(

@@ -33,8 +33,14 @@ def test_factors_command(capsys):
     code, out, _ = run(capsys, "factors", "--quantity", "ef_n2o_n_soil", "--climate-zone", "temperate",
                        "--land-use", "cropland", "--factor-set", "ipcc2013ws")
     assert code == 0
-    assert "ws13-t2.5-tem-crop" in out and "8.2 to 18" in out and "from_memory" in out
+    assert "ws13-t2.5-tem-crop" in out and "8.2 to 18" in out
     assert "ws13-t2.5-bor-crop" not in out
+    assert "not been checked against the published text" in out and "from_memory" not in out
+
+
+def test_factors_lines_stay_narrow(capsys):
+    code, out, _ = run(capsys, "factors")
+    assert code == 0 and max(len(line) for line in out.splitlines()) <= 120
 
 
 def test_factors_command_lists_known_conflicts(capsys):
@@ -99,13 +105,13 @@ CASES = [
      "overrides.csv, row 2, column unit: unit cannot be converted for ef_co2_c_onsite"),
     ("unknown settings key", lambda s: s.write_text(s.read_text().replace("gwp =", "gwq =")),
      # (the list names every [method] key, allocation and transition_years included)
-     "column method.gwq: unknown key; found 'gwq'; expected one of factor_set, gwp, mass_ratios, "
+     "setting method.gwq: unknown key; found 'gwq'; expected one of factor_set, gwp, mass_ratios, "
      "ipcc2006_temperate, allocation, transition_years (did you mean gwp?)"),
     ("unknown GWP set", lambda s: s.write_text(s.read_text().replace('gwp = "AR5"', 'gwp = "AR7"')),
-     "column method.gwp: value not accepted; found 'AR7'; expected AR5 | AR4 | AR6 | SAR"),
-    ("missing input file", lambda s: (s.parent / "fires.csv").unlink(), "column inputs.fires: input file not found"),
+     "setting method.gwp: value not accepted; found 'AR7'; expected AR5 | AR4 | AR6 | SAR"),
+    ("missing input file", lambda s: (s.parent / "fires.csv").unlink(), "setting inputs.fires: input file not found"),
     ("path outside settings folder", lambda s: s.write_text(s.read_text().replace('"fires.csv"', '"../fires.csv"')),
-     "column inputs.fires: path leaves the settings folder"),
+     "setting inputs.fires: path leaves the settings folder"),
     ("review differs", lambda s: (s.parent / "factor_review.csv").write_text(
         (s.parent / "factor_review.csv").read_text().replace(",agrees,", ",differs,")),
      "factor ws13-t2.1-tem-crop was found to differ"),

@@ -21,7 +21,7 @@ FINGERPRINTS = [
     ("drained_ipcc2013ws.csv", 93, 19, 12300.34, "c61c82673f062471e311907836d568a92ffa312993d383ac9e5ba8f0bcfa9db0"),
     ("fire_ipcc2013ws.csv", 13, 15, 3031.0, "707411a6ed5b36a6fd77a46072076b84a197285e50b57d803840fe83ed564a6e"),
     ("gwp.csv", 13, 11, 1280.8, "57182511af089f33525d168ae3e8f379e5b927f8173d3944d7aeecc5c87e5aa3"),
-    ("pathway_coverage.csv", 28, 8, None, "972741bd042b81a2ff886ddd7be26f6336173059d918702aa26dd75d16d354e7"),
+    ("pathway_coverage.csv", 28, 9, None, "5bc91ce74f65346f582517592b3a390301beb7b1a4eecc47f5742d8087b5c060"),
     # 29 rows: the co2_offsite row (off-site CO2 of extracted peat, 3.B.4.a.i) added.
     ("reporting_allocation.csv", 29, 7, None, "64672c9838196c6421d924617a1549778f56d411b0329b2e9188bc41332cbf30"),
     ("reporting_categories.csv", 18, 5, None, "5e99e555e12484e1b71df1435db9ea07cd200042ddb96f87f89325f1797bb645"),

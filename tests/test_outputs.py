@@ -135,12 +135,15 @@ def test_workbook_splits_the_strata_over_sheets_and_streams_them_like_a_serial_w
     assert got["input_row"].tolist() == em["input_row"].tolist()
 
 
-def test_workbook_factors_sheet_shows_verification(demo_output):
+def test_workbook_factors_sheet_shows_the_agency_check(demo_output):
+    # The agency's status from its factor review log; the repository's verification notes are not shown.
     ws = openpyxl.load_workbook(demo_output / "inventory.xlsx")["factors"]
     header = [c.value for c in ws[2]]
-    status = {ws.cell(r, 1).value: ws.cell(r, header.index("verification") + 1).value for r in range(3, ws.max_row + 1)}
-    assert status["ws13-t2.1-tem-crop"] == "from_memory"
-    assert status["quillfen-grass-co2"] == "supplied"
+    assert "verification" not in header and "verification_note" not in header
+    status = {ws.cell(r, 1).value: ws.cell(r, header.index("agency_check") + 1).value for r in range(3, ws.max_row + 1)}
+    assert status["ws13-t2.1-tem-crop"] == "agrees"  # examples/demo/factor_review.csv
+    assert status["ws13-t2.5-tem-crop"] == "not yet checked"
+    assert status["quillfen-grass-co2"] == "own factor"
 
 
 def test_user_text_is_never_a_formula(tmp_path, demo_result):
@@ -171,12 +174,16 @@ def test_manifest(demo_output, demo_result):
 
 
 def test_two_compiles_are_byte_identical(tmp_path, demo_result):
+    # The report too: font subsets carry the compile date, not the clock's (two runs a second apart).
+    import time
+
     a, b = tmp_path / "a", tmp_path / "b"
-    demo_result.write(a, report=False)
-    compile_inventory(demo_result.settings).write(b, report=False)
+    demo_result.write(a)
+    time.sleep(1.1)
+    compile_inventory(demo_result.settings).write(b)
     for name in ("emissions.csv", "gap_filling.csv", "datapackage.json", "inventory.xlsx", "manifest.json",
-                 "organic_soils.csv", "timeseries_gases.csv", "timeseries_categories.csv", "methods_chapter.md",
-                 "methods_chapter.docx"):
+                 "report.html", "report.pdf", "organic_soils.csv", "timeseries_gases.csv", "timeseries_categories.csv",
+                 "methods_chapter.md", "methods_chapter.docx"):
         assert sha(a / name) == sha(b / name), name
 
 

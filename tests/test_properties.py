@@ -276,3 +276,24 @@ def test_splitting_a_stratum_between_two_regions_keeps_the_totals(rows, share):
 
 def _kind(row: dict) -> tuple:
     return tuple(sorted((k, v) for k, v in row.items() if k not in ("area_ha", "year", "region")))
+
+
+# --- every inventory length, all-zero areas: the whole compile and every output (issue of the hardening round)
+
+@settings(max_examples=4, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(first=st.integers(1990, 2030), span=st.sampled_from([0, 1, 2]),
+       strata=st.lists(st.sampled_from(range(len(STRATA))), min_size=1, max_size=3, unique=True),
+       zero=st.booleans())
+def test_any_length_and_all_zero_areas_compile_and_write(first, span, strata, zero):
+    # One-, two- and three-year inventories starting in any year, with areas that may all be zero, compile with
+    # every analysis and write every output, the report included.
+    rows = [dict(year=y, region=REGIONS[0], area_ha=0.0 if zero else 10.0 + i, **STRATA[s])
+            for y in range(first, first + span + 1) for i, s in enumerate(strata)]
+    with tempfile.TemporaryDirectory() as tmp:
+        settings_path = write_inventory(Path(tmp) / "inv", rows, first=first, last=first + span)
+        result = compile_inventory(settings_path, iterations=200)
+        assert result.aggregates.years == tuple(range(first, first + span + 1))
+        if zero:
+            assert result.aggregates.total_co2eq_t.abs().sum() == 0
+        result.write(Path(tmp) / "out", report=True)
+        assert (Path(tmp) / "out" / "report.pdf").exists()

@@ -88,11 +88,13 @@ def test_demo_is_internally_consistent_and_its_findings_are_stable(demo_findings
     # Regression (our own earlier output): the demo raises no error; counts per check.
     assert not [f for f in demo_findings if f.severity == "error"]
     counts = pd.Series([f.check for f in demo_findings]).value_counts().to_dict()
-    # With Orlathmoor's peat production (off-site CO2 of extracted peat in 3.B.4.a.i): one more from_memory table
-    # in use (offsite_peat_ipcc2006.csv), and one year-on-year jump of 3.B.4.a.i CO2 fewer (its on-site fall as the
-    # extraction area shrinks is now a smaller share of the cell).
-    assert counts == {"year_on_year_emissions": 50, "year_on_year_area": 26, "area_balance": 8,
-                      "from_memory_in_use": 4, "estimated_ne_with_area": 2, "ne_insignificance": 2,
+    # With Orlathmoor's peat production (off-site CO2 of extracted peat in 3.B.4.a.i): one more table of factors
+    # not checked by the agency in use (offsite_peat_ipcc2006.csv), and one year-on-year jump of 3.B.4.a.i CO2
+    # fewer (its on-site fall as the extraction area shrinks is now a smaller share of the cell).
+    # year_on_year_emissions: changes of exactly 25 % (3.B.1.b CH4, 51.6 -> 64.5 t CO2-eq and its like) are no
+    # longer flagged, as the README says "above" the threshold.
+    assert counts == {"year_on_year_emissions": 49, "year_on_year_area": 26, "area_balance": 8,
+                      "factors_not_checked": 3, "estimated_ne_with_area": 2, "ne_insignificance": 2,
                       "override_partial_series": 1}
     order = [c.check for c in Q.CHECKS]
     positions = [order.index(f.check) for f in demo_findings]
@@ -424,15 +426,16 @@ def test_sums_tolerance_is_relative(demo_result):
 # --- 10 provenance --------------------------------------------------------------------------------------------
 
 
-def test_from_memory_factors_listed_per_table(demo_result, demo_findings):
-    found = only(demo_findings, "from_memory_in_use")
+def test_factors_the_agency_has_not_checked_listed_per_table(demo_result, demo_findings):
+    found = only(demo_findings, "factors_not_checked")
     fu = demo_result.factors_used
-    expected = fu[fu["verification"] == "from_memory"].groupby("origin").size()
+    expected = fu[(fu["agency_check"] == "not yet checked") & (fu["factor_set"] != "override")].groupby("origin").size()
     assert [f.file for f in found] == [f"factor_tables/{o}" for o in expected.index]
     assert [int(f.message.split()[0]) for f in found] == list(expected)
     assert all(f.severity == "info" for f in found)
-    checked = fu.assign(verification=fu["verification"].replace("from_memory", "checked"))
-    assert only(run(with_tables(demo_result, factors_used=checked)), "from_memory_in_use") == []
+    assert not any("ws13-t2.1-tem-crop" in f.message for f in found)  # the demo's review log: agrees
+    checked = fu.assign(agency_check="agrees")
+    assert only(run(with_tables(demo_result, factors_used=checked)), "factors_not_checked") == []
 
 
 # --- 11 completeness and insignificance -----------------------------------------------------------------------------
@@ -659,3 +662,10 @@ def test_compile_with_a_qaqc_error_exits_1_and_writes_nothing(tmp_path, capsys, 
     err = capsys.readouterr().err
     assert code == 1 and "QA/QC error" in err and "strata do not add up (test)" in err
     assert not out.exists()
+
+
+def test_a_change_of_exactly_the_threshold_is_not_flagged():
+    # The README: changes "above" the [qaqc] thresholds are flagged; 25 % of 1.2 is 0.3 (float division 25.000...04).
+    wide = pd.DataFrame([[100.0, 125.0], [1.2, 1.5], [100.0, 125.1]], columns=[2020, 2021],
+                        index=pd.Index(["a", "b", "c"], name="key"))
+    assert list(Q._jumps(wide, 25.0, 0.0)["key"]) == ["c"]

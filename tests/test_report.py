@@ -64,11 +64,17 @@ def test_every_factor_used_is_in_the_register_with_its_source(demo_result, archi
         assert f"[{source_id}]" in html
 
 
-def test_cautions_list_every_from_memory_factor(demo_result, pdf_text):
+def test_cautions_list_every_factor_the_agency_has_not_checked(demo_result, pdf_text, archived):
     text = _squash(pdf_text).replace(" ", "")
-    unverified = demo_result.factors_used.query("verification == 'from_memory'")["factor_id"]
-    for factor_id in unverified:
-        assert factor_id.replace(" ", "") in text, factor_id
+    assert "havenotbeencheckedagainstthepublishedtextbythetool'sauthors" in text
+    html = (archived / "report.html").read_text()
+    cautions = html[html.index('id="cautions"'):html.index('id="results"')]
+    unchecked = demo_result.factors_used.query("agency_check == 'not yet checked'")["factor_id"]
+    for factor_id in unchecked:
+        assert f'href="#f-{factor_id}"' in cautions, factor_id
+    assert 'href="#f-ws13-t2.1-tem-crop"' not in cautions  # marked agrees in the demo's factor review log
+    register_row = html[html.index('id="f-ws13-t2.1-tem-crop"'):]
+    assert "&#9888;" not in register_row[:register_row.index("</tr>")] and "\u26a0" not in register_row[:register_row.index("</tr>")]
     for head, _ in CAUTIONS:
         assert head.replace(" ", "") in text
     assert "licensed professionals" in _squash(pdf_text)
@@ -88,6 +94,9 @@ def test_archive_is_pdfa3_with_the_data_attached(archived):
         assert contents[0] == (archived / name).read_bytes(), name
     metadata = reader.xmp_metadata
     assert metadata is not None and "pdfaid" in str(reader.trailer["/Root"]["/Metadata"].get_object().get_data())
+    # The catalogue's associated files (PDF/A-3): each attachment once.
+    associated = [ref.get_object()["/F"] for ref in reader.trailer["/Root"]["/AF"]]
+    assert sorted(associated) == ["datapackage.json", "emissions.csv", "manifest.json"]
 
 
 def test_html_is_self_contained(archived):
@@ -180,3 +189,32 @@ def test_text_printed_before_a_parallel_write_appears_once(tmp_path):
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.count("before write") == 1
+
+
+WORKING_NOTES = ["from memory", "from_memory", "rule our own", "our own", "common practice", "no source", "style.md",
+                 "transcription", "not seen", "not recorded", "verification"]
+
+
+def test_no_working_notes_in_any_output(archived, demo_result, capsys):
+    """Notes on how the shipped values were entered stay in factor_tables/ and the tests, out of every output."""
+    import zipfile
+
+    from compiler.cli import _print_summary
+
+    texts = {name: (archived / name).read_text(encoding="utf-8")
+             for name in ("report.html", "factors.csv", "emissions.csv", "datapackage.json")}
+    with zipfile.ZipFile(archived / "inventory.xlsx") as book:
+        for name in book.namelist():
+            if name.startswith("xl/worksheets/"):
+                texts[name] = book.read(name).decode("utf-8")
+    texts["report.pdf"] = pdf_text_of(archived / "report.pdf")
+    _print_summary(demo_result, archived)
+    texts["console"] = capsys.readouterr().out
+    assert "row 0," not in texts["report.html"] and "row 0," not in texts["console"]  # "filled year, no input row"
+    for name, text in texts.items():
+        for note in WORKING_NOTES:
+            assert note.lower() not in text.lower(), (name, note)
+
+
+def pdf_text_of(path):
+    return "\n".join(page.extract_text() for page in PdfReader(path).pages)

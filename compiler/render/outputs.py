@@ -95,8 +95,8 @@ def _can_fork(parallel: bool | None) -> bool:
 class ReportJob:
     """The report (HTML and PDF) written by a forked copy of this process; :meth:`finish` waits for it."""
 
-    def __init__(self, process, connection):
-        self.process, self.connection = process, connection
+    def __init__(self, process, connection, progress=None):
+        self.process, self.connection, self.progress = process, connection, progress
 
     @classmethod
     def start(cls, result, folder: Path) -> "ReportJob":
@@ -109,29 +109,44 @@ class ReportJob:
                                   daemon=True)
         process.start()
         send.close()
-        return cls(process, receive)
+        return cls(process, receive, getattr(result, "_progress", None))
 
     def finish(self) -> None:
-        """Wait for the report; raise what the child raised (or say how it died)."""
+        """Wait for the report; raise what the child raised (or say how it died).
+
+        The child's formatted traceback rides along as the ``__cause__`` of the exception raised here
+        (a :class:`ChildTraceback`), so ``--traceback`` shows where the report failed, not only this re-raise.
+        """
+        from ..progress import stage
+
+        stage(self.progress, "laying out the report")  # the child draws nothing: this process says it
         try:
-            status, payload = self.connection.recv()
+            status, payload, child_tb = self.connection.recv()
         except EOFError:
-            status, payload = "died", None
+            status, payload, child_tb = "died", None, ""
         finally:
             self.connection.close()
             self.process.join()
         if status == "ok":
             return
+        cause = ChildTraceback(child_tb) if child_tb else None
         if status == "error" and isinstance(payload, BaseException):
-            raise payload
+            raise payload from cause
         raise RuntimeError(f"the report process ended without a result (exit code {self.process.exitcode})"
-                           + (f": {payload}" if payload else ""))
+                           + (f": {payload}" if payload else "")) from cause
 
     def cancel(self) -> None:
         if self.process.is_alive():
             self.process.terminate()
         self.process.join()
         self.connection.close()
+
+
+class ChildTraceback(Exception):
+    """The formatted traceback of an exception raised in the report process (shown as its cause)."""
+
+    def __str__(self) -> str:
+        return "raised in the report process:\n\n" + self.args[0].rstrip("\n")
 
 
 def _end_with_parent(parent: int) -> None:
@@ -164,18 +179,22 @@ def _end_with_parent(parent: int) -> None:
 
 
 def _report_child(result, folder: Path, connection, parent: int | None = None) -> None:
+    import traceback
+
     from .report import write_report
 
     if parent is not None:
         _end_with_parent(parent)
+    result._progress = None  # progress is shown by the parent only
     try:
         write_report(result, folder)
-        connection.send(("ok", None))
-    except BaseException as exc:  # sent to the parent, which raises it there
+        connection.send(("ok", None, ""))
+    except BaseException as exc:  # sent to the parent, which raises it there with this traceback as its cause
+        text = "".join(traceback.format_exception(exc))
         try:
-            connection.send(("error", exc))
+            connection.send(("error", exc, text))
         except Exception:  # an exception that cannot be pickled: its text
-            connection.send(("text", f"{type(exc).__name__}: {exc}"))
+            connection.send(("text", f"{type(exc).__name__}: {exc}", text))
     finally:
         connection.close()
 

@@ -8,7 +8,9 @@ URL or path, including one that a user's text might carry, is refused.
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
+import os
 from pathlib import Path
 from urllib.parse import unquote, urlparse
 
@@ -18,6 +20,7 @@ from jinja2 import Environment, FileSystemLoader, select_autoescape
 
 from ..categories import NOTATION_KEYS
 from ..offsite_peat import OFFSITE_PATHWAY
+from ..factors import unchecked_factors
 from ..row_model import ROW_MODELS
 from ..resources import resource_dir
 from ..units import basis_ratio
@@ -28,8 +31,9 @@ CAUTIONS = [
      "conditions; the 95 % intervals in the factor register show how coarse."),
     ("Key categories deserve higher tiers.", "Where a category is key, country-specific factors (Tier 2) or "
      "models and measurements (Tier 3) are good practice."),
-    ("Unverified factors.", "Factors marked from_memory were entered from the published tables but not yet "
-     "checked against the text; check each against your copy of the guidance before official use."),
+    ("Shipped factor values.", "The Tier 1 values shipped with the tool have not been checked against the "
+     "published text by the tool's authors and must be checked against your copy of the guidance before "
+     "official use; record each check in the factor review log."),
     ("National QA/QC.", "These estimates must pass the national QA/QC plan and its review before they are "
      "submitted."),
     ("Rewetting works.", "Rewetting needs hydrological design, permits and compliance with local codes, carried "
@@ -144,6 +148,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
     est = em[em["notation_key"] == ""]
     base, latest = s.first_year, s.last_year
     years = _years_shown(base, latest)
+    ends = sorted({base, latest})  # one column when the inventory has one year
     gwp = result.gwp
 
     totals = cats[cats["notation_key"] == ""].groupby("year")["co2eq_t"].sum() / 1000
@@ -155,16 +160,16 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         b, l = float(g.get(base, 0.0)), float(g.get(latest, 0.0))
         by_gas.append({"gas": gas, "base": _fmt(b), "latest": _fmt(l), "change": _pct(l, b), "raw_latest": l})
     cat_sum = (cats[cats["notation_key"] == ""].groupby(["category_code", "category_name", "year"])["co2eq_t"]
-               .sum().unstack("year").reindex(columns=[base, latest]).fillna(0.0) / 1000)
+               .sum().unstack("year").reindex(columns=ends).fillna(0.0) / 1000)
     by_category = [{"code": c, "name": n, "base": _fmt(r[base]), "latest": _fmt(r[latest]),
                     "change": _pct(r[latest], r[base]), "raw_latest": r[latest], "raw_change": r[latest] - r[base]}
                    for (c, n), r in cat_sum.iterrows() if r[base] or r[latest]]
 
     reg_sum = (est[est["co2eq_t"].notna()].groupby(["region", "year"])["co2eq_t"].sum().unstack("year")
-               .reindex(columns=[base, latest]).fillna(0.0) / 1000)
+               .reindex(columns=ends).fillna(0.0) / 1000)
     by_region = [{"region": name, "base": _fmt(r[base]), "latest": _fmt(r[latest]), "change": _pct(r[latest], r[base])}
                  for name, r in reg_sum.iterrows()]
-    unverified_used = result.factors_used[result.factors_used["verification"] == "from_memory"]
+    unverified_used = unchecked_factors(result.factors_used)
     factor_sources = _register(result)
 
     # Results: every category x gas row, kt CO2-eq (kt CO for CO) in the years shown.
@@ -193,7 +198,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
         methods = sorted({METHOD_OF_PATHWAY[p] for p in pathways_by_cell.get((code, gas), [])})
         reason = _merge_reasons(g.loc[g["notation_key"] != "", "notation_reason"])
         tonnes = [_fmt(by_year.loc[y, "emission_t"], 1) if not by_year.loc[y, "notation_key"] else by_year.loc[y, "notation_key"]
-                  for y in (base, latest)]
+                  for y in ends]
         part = None
         if (code, gas) in set(offsite_by_cell.index.droplevel("year")):
             part = {"label": "of which off-site CO2 of extracted peat",
@@ -253,12 +258,14 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
             review.append({**r, "related": shown})
     paragraph = _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas, result.activity)
     return {
-        "s": s, "result": result, "base": base, "latest": latest, "years": years,
+        "s": s, "result": result, "base": base, "latest": latest, "years": years, "ends": ends,
+        "single_year": base == latest,
         "version": result.version, "compile_date": result.compile_date,
         "hashes": sorted(result.input_hashes.items()),
         "total_base": _fmt(total_base), "total_latest": _fmt(total_latest), "total_change": _pct(total_latest, total_base),
         "by_gas": by_gas, "by_category": by_category, "by_region": by_region, "paragraph": paragraph,
         "cautions": CAUTIONS, "unverified": sorted(unverified_used["factor_id"]),
+        "unchecked_table": _unchecked_table(unverified_used),
         "rows": rows, "never": never, "notation_keys": NOTATION_KEYS,
         "charts": chart_svgs if chart_svgs is not None else charts.all_charts(result),
         "findings": _findings_context(findings), "findings_total": len(findings),
@@ -341,6 +348,13 @@ def _describe(r) -> str:
     return ", ".join(parts)
 
 
+def _unchecked_table(unchecked: pd.DataFrame) -> list[dict]:
+    """The cautions' table of unchecked factors in use: published table, row, value."""
+    rows = unchecked.sort_values(["table", "row_label", "factor_id"])
+    return [{"id": r["factor_id"], "table": r["table"], "row": r["row_label"],
+             "value": f"{r['value']:g} {r['unit']}"} for _, r in rows.iterrows()]
+
+
 def _register(result) -> list[dict]:
     f = result.factors_used
     em = result.emissions[result.emissions["notation_key"] == ""]
@@ -363,11 +377,12 @@ def _register(result) -> list[dict]:
                 defaults.append(f"{d} ({reg.loc[d, 'value']:g} {reg.loc[d, 'unit']})")
         out.append({
             "id": row["factor_id"], "quantity": row["quantity"], "value": f"{row['value']:g}", "unit": row["unit"],
-            "interval": interval, "tier": row["tier"], "verification": row["verification"],
-            "note": row["verification_note"], "citation": row["citation"],
-            "ref": row["source_id"] or "override",
+            "interval": interval, "tier": row["tier"],
+            "agency_check": row.get("agency_check", "not yet checked"),
+            "unchecked": row["factor_set"] != "override" and row.get("agency_check", "") != "agrees",
+            "citation": row["citation"], "ref": row["source_id"] or "override",
             "locator": ", ".join(x for x in (row["table"], row["row_label"],
-                                             f"p. {row['page']}" if row["page"] not in ("", "not recorded") else "page not recorded")
+                                             f"p. {row['page']}" if row["page"] not in ("", "not recorded") else "")
                                  if x),
             "strata": [_describe(r) for _, r in u.iterrows()],
             "categories": sorted(set(u["category_code"])),
@@ -389,8 +404,7 @@ def _uncertainty_context(result) -> dict | None:
     out = {"approach": unc.approach, "rules": list(METHOD_RULES.items()), "rows": [], "total": [], "trend": None}
     a1 = unc.approach1
     mc = unc.monte_carlo
-    years = (s.first_year, s.last_year)
-    for year in years:
+    for year in sorted({s.first_year, s.last_year}):
         entry = {"year": year}
         if a1 is not None:
             t = a1.total[a1.total["year"] == year].iloc[0]
@@ -430,6 +444,8 @@ def _key_category_context(result) -> dict | None:
     if kc is None:
         return None
     table = kc.table
+    if table.empty:  # nothing estimated (e.g. every area zero): no category to assess
+        return {"note": kc.note, "rows": [], "names": ""}
     key = table[table["key"]]
     return {"note": kc.note,
             "rows": [{"run": r["run"], "code": r["category_code"], "gas": r["gas"],
@@ -467,8 +483,18 @@ def _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas
     rewet_l = float(area.loc[latest].get("rewetted", 0.0)) if latest in area.index else 0.0
     drained_b = float(area.loc[base].get("drained", 0.0)) if base in area.index else 0.0
     drained_l = float(area.loc[latest].get("drained", 0.0)) if latest in area.index else 0.0
-    text = (f"Net emissions of organic soils {direction} from {_fmt(total_base)} kt CO2-eq in {base} to "
-            f"{_fmt(total_latest)} kt CO2-eq in {latest} ({change}). "
+    if base == latest:
+        return (f"Net emissions of organic soils were {_fmt(total_latest)} kt CO2-eq in {latest}. "
+                f"The largest category is {top['code']} {top['name']} ({_fmt(top['raw_latest'])} kt CO2-eq, "
+                f"{share:.0f} % of the gross total); {gas_top['gas']} is the largest gas. "
+                f"Drained area was {_fmt(drained_l / 1000)} thousand ha and rewetted area "
+                f"{_fmt(rewet_l / 1000)} thousand ha.")
+    if direction == "stayed":
+        level = f"stayed at {_fmt(total_latest)} kt CO2-eq from {base} to {latest}. "
+    else:
+        level = (f"{direction} from {_fmt(total_base)} kt CO2-eq in {base} to "
+                 f"{_fmt(total_latest)} kt CO2-eq in {latest} ({change}). ")
+    text = (f"Net emissions of organic soils {level}"
             f"The largest category in {latest} is {top['code']} {top['name']} ({_fmt(top['raw_latest'])} kt CO2-eq, "
             f"{share:.0f} % of the gross total); {gas_top['gas']} is the largest gas. "
             f"The largest change since {base} is in {mover['code']} {mover['name']} "
@@ -488,13 +514,22 @@ GLOSSARY = [
     ("CO2-eq", "mass of a gas times its 100-year global warming potential (GWP100)"),
     ("95 % interval", "the range printed with a factor, within which the true mean lies with 95 % probability"),
     ("DOC", "dissolved organic carbon, exported by drainage water and mostly emitted as CO2 downstream"),
-    ("from_memory", "a shipped factor entered from the published table but not yet checked against its text"),
+    ("agency check", "the agency's status of a shipped factor, from its factor review log: agrees, differs "
+                     "(an error while the factor is used) or not yet checked; own factor for an override"),
 ]
+
+
+def side_by_side(items) -> list[tuple]:
+    """A long narrow list as rows of two: the first half down the left, the second down the right."""
+    items = list(items)
+    half = (len(items) + 1) // 2
+    return [(items[i], items[half + i] if half + i < len(items) else None) for i in range(half)]
 
 
 def render_html(result, chart_svgs: dict[str, str] | None = None) -> str:
     env = Environment(loader=FileSystemLoader(str(resource_dir("report_templates"))),
                       autoescape=select_autoescape(["html", "j2"]), trim_blocks=True, lstrip_blocks=True)
+    env.filters["side_by_side"] = side_by_side
     context = build_context(result, chart_svgs)
     from .submission import report_context
 
@@ -507,11 +542,15 @@ def write_report(result, folder: Path) -> RestrictedFetcher:
     """Write report.html and report.pdf; return the fetcher (its ``refused`` list names what was refused)."""
     from weasyprint import HTML
 
+    from ..progress import stage
+
+    stage(getattr(result, "_progress", None), "laying out the report")
     html = render_html(result)
     (folder / "report.html").write_text(html, encoding="utf-8")
     fetcher = RestrictedFetcher(resource_dir("report_templates"))
     document = HTML(string=html, base_url=str(resource_dir("report_templates")) + "/", url_fetcher=fetcher).render()
-    document.write_pdf(folder / "report.pdf", pdf_identifier=_identifier(result))
+    with _fixed_font_dates(result):
+        document.write_pdf(folder / "report.pdf", pdf_identifier=_identifier(result))
     result._report_document = document  # reused by write_archive: the layout is done once
     return fetcher
 
@@ -520,6 +559,9 @@ def write_archive(result, folder: Path) -> None:
     """report-archive.pdf: PDF/A-3b carrying emissions.csv, datapackage.json and manifest.json as attachments."""
     from weasyprint import HTML, Attachment
 
+    from ..progress import stage
+
+    stage(getattr(result, "_progress", None), "writing the PDF/A-3b archive")
     document = getattr(result, "_report_document", None)
     if document is None:
         html = (folder / "report.html").read_text(encoding="utf-8")
@@ -532,8 +574,37 @@ def write_archive(result, folder: Path) -> None:
                               ("manifest.json", "run manifest")):
         attachments.append(Attachment(string=(folder / name).read_bytes(), name=name, description=description,
                                       created=stamp, modified=stamp, relationship="Data"))
-    document.write_pdf(folder / "report-archive.pdf", pdf_variant="pdf/a-3b", attachments=attachments,
-                       pdf_identifier=_identifier(result))
+    with _fixed_font_dates(result):
+        document.write_pdf(folder / "report-archive.pdf", pdf_variant="pdf/a-3b", attachments=attachments,
+                           pdf_identifier=_identifier(result), finisher=_associated_files_once)
+
+
+def _associated_files_once(document, pdf) -> None:
+    """The catalogue's /AF array with each attachment once (WeasyPrint 70 lists every file spec twice)."""
+    import pydyf
+
+    files = pdf.catalog.get("AF")
+    if files:
+        pdf.catalog["AF"] = pydyf.Array(dict.fromkeys(files))
+
+
+@contextlib.contextmanager
+def _fixed_font_dates(result):
+    """Font subsets made by fontTools carry a modification time (the ``head`` table), by default the clock's.
+
+    fontTools takes it from SOURCE_DATE_EPOCH when set (the reproducible-builds convention): set to the
+    compile date while the PDF is written, so two runs give the same bytes.
+    """
+    stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00+00:00")
+    before = os.environ.get("SOURCE_DATE_EPOCH")
+    os.environ["SOURCE_DATE_EPOCH"] = str(int(stamp.timestamp()))
+    try:
+        yield
+    finally:
+        if before is None:
+            os.environ.pop("SOURCE_DATE_EPOCH", None)
+        else:
+            os.environ["SOURCE_DATE_EPOCH"] = before
 
 
 def _identifier(result) -> bytes:

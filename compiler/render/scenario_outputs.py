@@ -36,10 +36,11 @@ def _lines(frame: pd.DataFrame, column: str, ylabel: str, title: str, scale: flo
         ax.plot(g["year"], g[column] * scale, color=COLOURS[i % len(COLOURS)], linestyle=STYLES[i % len(STYLES)],
                 linewidth=1.5, label=name.replace("_", " "))
     ax.axhline(0, color="#444444", linewidth=0.5)
+    charts.year_axis(ax, frame["year"])
     ax.set_ylabel(ylabel)
     ax.set_title(title, loc="left")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
-    return charts._svg(fig)
+    return charts._svg(fig, column)
 
 
 def scenario_charts(outcome) -> dict[str, str]:

@@ -117,9 +117,17 @@ def write_datapackage(package: dict, path: Path) -> None:
     path.write_text(json.dumps(package, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
 
 
+def public_factors(factors: pd.DataFrame) -> pd.DataFrame:
+    """The factor table as the outputs show it: a page the shipped table did not record is left blank."""
+    frame = factors.copy()
+    if "page" in frame:
+        frame["page"] = frame["page"].astype(str).replace({"not recorded": ""})
+    return frame
+
+
 def write_factors_csv(factors: pd.DataFrame, path: Path) -> None:
     """factors.csv: every factor used, with its source and locator (what a reviewer's trace reads)."""
-    frame = factors.copy()
+    frame = public_factors(factors)
     for col in FACTOR_COLUMNS:
         if col not in frame:
             frame[col] = ""

@@ -90,6 +90,9 @@ def _records(frame: pd.DataFrame, columns):
 
 
 def write_workbook(result, path: Path) -> None:
+    from ..progress import stage
+
+    stage(getattr(result, "_progress", None), "writing the workbook")
     s = result.settings
     wb = Workbook(write_only=True)
     agg = result.aggregates
@@ -115,7 +118,8 @@ def write_workbook(result, path: Path) -> None:
     totals = [float(agg.total_co2eq_t[y]) / 1000 for y in shown]
     summary_rows.append(("Total", "all categories, gases with a GWP", "CO2-eq", "kt CO2-eq", *totals,
                          *([agg.change(*totals)] if len(shown) == 2 else [])))
-    notes = [f"{s.name} - submission {s.submission_year}, years {base}-{latest}",
+    span = f"year {base}" if base == latest else f"years {base}-{latest}"
+    notes = [f"{s.name} - submission {s.submission_year}, {span}",
              f"Factor set {s.factor_set}; GWP100 set {s.gwp}; molar masses: {s.mass_ratios}; compiled {result.compile_date} "
              f"with histosol {result.version}",
              "Tier 1 defaults are coarse; key categories deserve higher tiers; estimates must pass the national QA/QC plan.",
@@ -204,16 +208,20 @@ def write_workbook(result, path: Path) -> None:
     _analysis_sheets(wb, result)
 
     # factors used
-    f = result.factors_used
+    from .tidy import public_factors
+
+    f = public_factors(result.factors_used)
     fcols = ["factor_id", "factor_set", "quantity", "climate_zone", "land_use", "soil_status", "nutrient_status",
-             "drainage_depth", "subtype", "fire_type", "value", "unit", "ci_low", "ci_high", "tier", "verification",
-             "verification_note", "table", "row_label", "page", "citation", "region", "first_year", "last_year",
-             "review_result", "reviewed_by", "reviewed_on", "reviewed_against"]
+             "drainage_depth", "subtype", "fire_type", "value", "unit", "ci_low", "ci_high", "tier", "agency_check",
+             "table", "row_label", "page", "citation", "region", "first_year", "last_year",
+             "reviewed_by", "reviewed_on", "reviewed_against"]
     _sheet(wb, "factors", fcols, _records(f, fcols), {"value": FORMATS["factor"], "ci_low": FORMATS["factor"],
                                                      "ci_high": FORMATS["factor"]},
-           {"factor_id": 32, "citation": 60, "row_label": 44, "verification_note": 40},
-           ["Every factor used in this compile, with its source. verification = from_memory: not yet checked "
-            "against the published table; check before official use."])
+           {"factor_id": 32, "citation": 60, "row_label": 44, "agency_check": 16},
+           ["Every factor used in this compile, with its source. agency_check: the agency's check of a shipped "
+            "factor against its copy of the guidance (factor review log): agrees, differs or not yet checked; "
+            "own factor for an override. The shipped values have not been checked against the published text "
+            "by the tool's authors: check them before official use."])
 
     fd = result.findings
     _sheet(wb, "findings", list(fd.columns), _records(fd, list(fd.columns)), {"row": FORMATS["int"]},
