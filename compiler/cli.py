@@ -68,6 +68,9 @@ def _parser() -> argparse.ArgumentParser:
     f.add_argument("--land-use", help="only rows for this land use (rows that apply to any land use included)")
     f.add_argument("--soil-status", choices=["drained", "rewetted"], help="only drained or rewetted rows")
     f.add_argument("--csv", action="store_true", help="print CSV instead of a table")
+    f.add_argument("--notes", action="store_true",
+                   help="also print the shipped tables' own notes: the rows not yet checked against the published "
+                        "text whose readings disagree, with what differs (factor_tables/ verification_note)")
     return p
 
 
@@ -286,7 +289,8 @@ def _factors(args) -> int:
     if reg.empty:
         raise InputError("no factor matches these filters")
     if args.csv:
-        sys.stdout.write(reg[cols + ["citation"]].to_csv(index=False, lineterminator="\n"))
+        extra = ["verification", "verification_note"] if args.notes else []
+        sys.stdout.write(reg[cols + ["citation", *extra]].to_csv(index=False, lineterminator="\n"))
         return EXIT_OK
     view = reg[cols].copy()
     view["95% interval"] = [("" if pd.isna(lo) else f"{lo:g} to {hi:g}") for lo, hi in zip(view["ci_low"], view["ci_high"])]
@@ -316,6 +320,14 @@ def _factors(args) -> int:
     print(f"\n{len(reg)} factors. The shipped values have not been checked against the published text by the "
           "tool's authors:\ncheck each against your copy of the guidance before official use and record the "
           "result in a factor\nreview log ([inputs] factor_review); --csv gives the full row labels and citations.")
+    if args.notes:
+        # Rows whose readings of the published table disagree: the shipped note says what differs.
+        noted = reg["verification_note"].fillna("").str.startswith("conflict")
+        conflicts = reg[(reg["verification"] == "from_memory") & noted]
+        print(f"\n{len(conflicts)} of them with a known conflict between readings of the published table; "
+              "check these first:")
+        for fid, note in zip(conflicts["factor_id"], conflicts["verification_note"]):
+            print(f"  {fid}: {note}")
     return EXIT_OK
 
 
