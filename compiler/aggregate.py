@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 GASES_WITH_GWP = ("CO2", "CH4", "N2O")
+REGIONS_SHOWN = 30  # regions listed one by one in the report; the rest are one line (the workbook has them all)
 CATEGORY = ["category_code", "category_name", "gas"]
 
 
@@ -43,6 +44,17 @@ class Aggregates:
     area_ha: pd.DataFrame
     # organic-soil area per year, all statuses [ha]: index year
     area_total_ha: pd.Series
+
+    def largest_regions(self, shown: int = REGIONS_SHOWN) -> tuple[pd.DataFrame, pd.Series | None, int]:
+        """The ``shown`` regions of largest absolute latest-year emissions (in their order), and the rest
+        summed per year with their count (None and 0 when every region is shown) [t CO2-eq]."""
+        table = self.region_co2eq_t
+        if len(table) <= shown:
+            return table, None, 0
+        order = table[self.latest_year].abs().sort_values(ascending=False, kind="stable").index
+        top = table.loc[sorted(order[:shown])]
+        rest = table.drop(index=order[:shown])
+        return top, rest.sum(), len(rest)
 
     def change(self, base: float, latest: float) -> float | None:
         """Relative change from the base to the latest year [fraction]; None where the base is zero."""

@@ -159,7 +159,10 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
         current = emissions[emissions["notation_key"] == ""]
         by_cell, by_row = compare(previous, current,
                                   factor_sets=dict(zip(library.register["factor_id"], library.register["factor_set"])))
+        parts = [c for c in ("gwp_change", "factor_set_change", "shipped_value_change", "override_change")
+                 if c in by_cell]
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
+                         "factor_parts_t": by_cell[parts].sum().to_dict(),  # all cells and common years [t CO2-eq]
                          **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
     used_ids = set(emissions["factor_id"].unique()) | set(emissions["parameter_id"].unique())
     factors_used = register[register["factor_id"].isin(used_ids)].copy()

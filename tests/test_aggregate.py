@@ -45,3 +45,17 @@ def test_every_inventory_length_and_all_zero_areas(tmp_path, years, areas):
     header = next(r for r in summary.iter_rows(values_only=True) if r and r[0] == "category_code")
     assert header.count(str(first)) == 1  # a one-year inventory shows its year once
     assert ("change" in header) == (first != last)
+
+
+def test_the_report_lists_the_largest_regions_and_sums_the_rest(demo_result):
+    # 20,000 regions would make a report of hundreds of pages: beyond REGIONS_SHOWN the rest is one line, and the
+    # lines still add up to the total of every year (the workbook lists every region).
+    agg = demo_result.aggregates
+    top, rest, count = agg.largest_regions(2)
+    assert len(top) == 2 and count == len(agg.region_co2eq_t) - 2
+    latest = agg.region_co2eq_t[agg.latest_year].abs().sort_values(ascending=False)
+    assert set(top.index) == set(latest.index[:2])
+    for year in agg.years:
+        assert top[year].sum() + rest[year] == pytest.approx(agg.region_co2eq_t[year].sum(), rel=1e-12)
+    all_shown, none, zero = agg.largest_regions(len(agg.region_co2eq_t))
+    assert none is None and zero == 0 and len(all_shown) == len(agg.region_co2eq_t)

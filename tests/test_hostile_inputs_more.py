@@ -52,10 +52,10 @@ def nested_tables(depth: int) -> str:
 CASES = [
     # --- 1. compile_date outside what a zip entry holds (1980-01-01 to 2107-12-31)
     ("compile_date 1979", lambda f: edit_settings(f, 'compile_date = "2026-01-01"', 'compile_date = "1979-12-31"'),
-     "inventory.toml, column inventory.compile_date: compile_date outside the dates a workbook (zip) file can hold; "
+     "inventory.toml, setting inventory.compile_date: compile_date outside the dates a workbook (zip) file can hold; "
      "found '1979-12-31'; expected a date from 1980-01-01 to 2107-12-31"),
     ("compile_date 2108", lambda f: edit_settings(f, 'compile_date = "2026-01-01"', 'compile_date = "2108-01-01"'),
-     "column inventory.compile_date: compile_date outside the dates a workbook (zip) file can hold; "
+     "setting inventory.compile_date: compile_date outside the dates a workbook (zip) file can hold; "
      "found '2108-01-01'"),
     ("compile_date year 1 as TOML date", lambda f: edit_settings(f, 'compile_date = "2026-01-01"',
                                                                   "compile_date = 0001-01-01"),
@@ -107,10 +107,10 @@ CASES = [
      "others); found '\u03a4elavi Lowlands (U+03A4 GREEK CAPITAL LETTER TAU at position 1)'"),
     ("settings: zero-width space in the inventory name",
      lambda f: edit_settings(f, 'name = "Test inventory"', 'name = "Test\u200binventory"'),
-     "inventory.toml, column inventory.name: holds an invisible character or a noncharacter; found "
+     "inventory.toml, setting inventory.name: holds an invisible character or a noncharacter; found "
      "'Test\\u200binventory (U+200B ZERO WIDTH SPACE at position 5)'"),
     ("settings: noncharacter in a path", lambda f: edit_settings(f, '"activity.csv"', '"activity\ufffe.csv"'),
-     "inventory.toml, column inputs.activity: holds an invisible character or a noncharacter; found "
+     "inventory.toml, setting inputs.activity: holds an invisible character or a noncharacter; found "
      "'activity\\ufffe.csv (U+FFFE NONCHARACTER at position 9)'"),
     # --- 7. very wide tables: at most 1,000 columns, duplicates found in one pass
     ("a million columns", lambda f: small(f, text=csv_text(ROW + "," * 999_991,

@@ -165,10 +165,13 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
                     "change": _pct(r[latest], r[base]), "raw_latest": r[latest], "raw_change": r[latest] - r[base]}
                    for (c, n), r in cat_sum.iterrows() if r[base] or r[latest]]
 
-    reg_sum = (est[est["co2eq_t"].notna()].groupby(["region", "year"])["co2eq_t"].sum().unstack("year")
-               .reindex(columns=ends).fillna(0.0) / 1000)
-    by_region = [{"region": name, "base": _fmt(r[base]), "latest": _fmt(r[latest]), "change": _pct(r[latest], r[base])}
-                 for name, r in reg_sum.iterrows()]
+    # Regions from the aggregate stage: the largest one by one, beyond REGIONS_SHOWN the rest on one line.
+    top, rest, n_rest = result.aggregates.largest_regions()
+    by_region = [{"region": name, "base": _fmt(r[base] / 1000), "latest": _fmt(r[latest] / 1000),
+                  "change": _pct(r[latest], r[base])} for name, r in top.iterrows()]
+    if rest is not None:
+        by_region.append({"region": f"{n_rest:,} other regions (each in the workbook)", "base": _fmt(rest[base] / 1000),
+                          "latest": _fmt(rest[latest] / 1000), "change": _pct(rest[latest], rest[base])})
     unverified_used = unchecked_factors(result.factors_used)
     factor_sources = _register(result)
 
@@ -244,7 +247,9 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
                                                                       "factor_change", "strata_added", "strata_removed",
                                                                       "allocation_change")},
                             "pct": "" if np.isnan(r["difference_pct"]) else f"{r['difference_pct']:+.1f} %"}
-                           for r in view.to_dict("records")]}
+                           for r in view.to_dict("records")],
+                  "factor_parts": [(name.replace("_", " "), _fmt(value / 1000, 1)) for name, value in
+                                   result.recalculation.get("factor_parts_t", {}).items()]}
     uncertainty = _uncertainty_context(result)
     keycat = _key_category_context(result)
     review = []
