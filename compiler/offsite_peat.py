@@ -52,8 +52,8 @@ USES = ("horticulture", "energy", "other")
 ESTIMATED_USES = ("horticulture", "other")
 PARAMETER_ID = "activity:peat_production"
 PARAMETER_UNIT = "t air-dry peat yr-1"
-EQUATION = ("2006 GL Vol. 4 Section 7.2.1.1 off-site CO2-C = Wt_dry peat x C_fraction (Eq. 7.5; number from "
-            "memory), x 44/12")
+# The equation's number is not checked against the published text: see factor_tables/offsite_peat_ipcc2006.csv.
+EQUATION = "2006 GL Vol. 4 Section 7.2.1.1 off-site CO2-C = Wt_dry peat x C_fraction, x 44/12"
 # The stratum the carbon fractions are matched on (and the allocation to 3.B.4.a.i).
 STRATUM = {"climate_zone": "", "land_use": "wetlands", "soil_status": "drained", "drainage_depth": "",
            "subtype": "peat_extraction", "remaining_or_converted": "remaining", "previous_land_use": "",

@@ -235,44 +235,44 @@ def initial_ch4(value: str) -> str:
 SCENARIO_CASES = [
     # rates: infinite, not a number, astronomically large
     ("drainage rate inf", SCENARIO_HEAD + drain(area_ha_per_year="inf"),
-     "column scenario.d.measure[1].area_ha_per_year: not a finite number; found 'inf'; expected a finite number"),
+     "setting scenario.d.measure[1].area_ha_per_year: not a finite number; found 'inf'; expected a finite number"),
     ("drainage rate 1e300", SCENARIO_HEAD + drain(area_ha_per_year="1e300"),
-     "column scenario.d.measure[1].area_ha_per_year: above 1e9 in magnitude; found '1e+300'; expected at most "
+     "setting scenario.d.measure[1].area_ha_per_year: above 1e9 in magnitude; found '1e+300'; expected at most "
      "1,000,000,000 in magnitude"),
     ("drainage rate as a huge integer", SCENARIO_HEAD + drain(area_ha_per_year="9223372036854775807"),
-     "column scenario.d.measure[1].area_ha_per_year: above 1e9 in magnitude; found '9.22337e+18'"),
+     "setting scenario.d.measure[1].area_ha_per_year: above 1e9 in magnitude; found '9.22337e+18'"),
     ("ditch fraction nan", SCENARIO_HEAD + drain(ditch_fraction="nan"),
-     "column scenario.d.measure[1].ditch_fraction: not a finite number; found 'nan'"),
+     "setting scenario.d.measure[1].ditch_fraction: not a finite number; found 'nan'"),
     ("share -inf", SCENARIO_HEAD + rewet(share="-inf"),
-     "column scenario.r.measure[1].share: not a finite number; found '-inf'"),
+     "setting scenario.r.measure[1].share: not a finite number; found '-inf'"),
     ("initial CH4 multiplier 1e308", SCENARIO_HEAD + initial_ch4("1e308"),
-     "column scenario.r.measure[1].initial_ch4.value: above 1e9 in magnitude; found '1e+308'"),
+     "setting scenario.r.measure[1].initial_ch4.value: above 1e9 in magnitude; found '1e+308'"),
     # names and descriptions: control and terminal-escape characters, invisible characters, length
     ("terminal escape in a name", SCENARIO_HEAD + '[[scenario]]\nname = "red\\u001b[31mflag"\n',
-     "column scenario[2].name: holds control characters; found 'red\\x1b[31mflag'; expected printable "
+     "setting scenario[2].name: holds control characters; found 'red\\x1b[31mflag'; expected printable "
      "text on one line"),
     ("bell and line break in a description",
      SCENARIO_HEAD + '[[scenario]]\nname = "x"\ndescription = "one\\u0007two\\nthree"\n',
-     "column scenario.x.description: holds control characters; found 'one\\x07two\\nthree'"),
+     "setting scenario.x.description: holds control characters; found 'one\\x07two\\nthree'"),
     ("bidi override in a description", SCENARIO_HEAD + '[[scenario]]\nname = "x"\ndescription = "a\\u202eb"\n',
-     "column scenario.x.description: holds control characters; found 'a\\u202eb'"),
+     "setting scenario.x.description: holds control characters; found 'a\\u202eb'"),
     ("zero-width space in a name", SCENARIO_HEAD + '[[scenario]]\nname = "half\\u200brewetted"\n',
-     "column scenario[2].name: holds an invisible character or a noncharacter; found "
+     "setting scenario[2].name: holds an invisible character or a noncharacter; found "
      "'half\\u200brewetted (U+200B ZERO WIDTH SPACE at position 5)'"),
     ("noncharacter in a description", SCENARIO_HEAD + '[[scenario]]\nname = "x"\ndescription = "a\\uFFFFb"\n',
-     "column scenario.x.description: holds a noncharacter; found 'a\\uffffb (U+FFFF NONCHARACTER at position 2)'"),
+     "setting scenario.x.description: holds a noncharacter; found 'a\\uffffb (U+FFFF NONCHARACTER at position 2)'"),
     ("Cyrillic letter in a region filter", SCENARIO_HEAD + rewet(region='["T\\u0435stvale"]'),
-     "column scenario.r.measure[1].region: mixes alphabets within a word (letters that look alike but are "
+     "setting scenario.r.measure[1].region: mixes alphabets within a word (letters that look alike but are "
      "others); found 'T\u0435stvale (U+0435 CYRILLIC SMALL LETTER IE at position 2)'"),
     ("name of 201 characters", SCENARIO_HEAD + f'[[scenario]]\nname = "{"n" * 201}"\n',
-     "column scenario[2].name: longer than 200 characters; found '" + "n" * 60
+     "setting scenario[2].name: longer than 200 characters; found '" + "n" * 60
      + "... (201 characters)'; expected at most 200 characters"),
     ("description of 100,000 characters",
      SCENARIO_HEAD + f'[[scenario]]\nname = "x"\ndescription = "{"d" * 100_000}"\n',
-     "column scenario.x.description: longer than 2000 characters; found '" + "d" * 60 + "... (100,000 characters)'"),
+     "setting scenario.x.description: longer than 2000 characters; found '" + "d" * 60 + "... (100,000 characters)'"),
     ("citation of 2,001 characters", SCENARIO_HEAD + rewet() + '[scenario.measure.initial_ch4]\nmode = "multiply"\n'
      f'value = 0.5\nyears = 5\ncitation = "{"c" * 2001}"\n',
-     "column scenario.r.measure[1].initial_ch4.citation: longer than 2000 characters"),
+     "setting scenario.r.measure[1].initial_ch4.citation: longer than 2000 characters"),
     # nesting and size
     ("arrays nested 3,000 deep", "horizon = " + "[" * 3000 + "]" * 3000 + "\n" + SCENARIO_HEAD,
      "scenarios.toml: arrays or tables nested too deeply to read (more than 8 levels are refused)"),

@@ -29,7 +29,7 @@ def cut_demo(folder: Path, first: int, last: int, zero_areas: bool = False) -> P
     toml = re.sub(r"first_year = \d+", f"first_year = {first}", toml)
     toml = re.sub(r"last_year = \d+", f"last_year = {last}", toml)
     toml = re.sub(r"iterations = \d+", "iterations = 1000", toml)
-    for name in ("activity.csv", "fires.csv", "surrogates.csv"):
+    for name in ("activity.csv", "fires.csv", "surrogates.csv", "peat_production.csv"):
         table = pd.read_csv(DEMO / name, dtype=str, keep_default_na=False)
         table = table[table["year"].astype(int).between(first, last)]
         if zero_areas and name == "activity.csv":
