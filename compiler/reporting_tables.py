@@ -51,7 +51,7 @@ LINE_KEYS = ["year", "land_category_code", "line", "soil_status", "climate_zone"
 ORGANIC_SOILS_COLUMNS = [
     *LINE_KEYS[:2], "land_category_name", *LINE_KEYS[2:], "area_kha",
     *(f"ief_{p}" for p in SOIL_PATHWAYS),
-    "co2_soil_kt", "co2_offsite_kt", "co2_fire_kt", "ch4_kt", "n2o_kt", "n2o_reported_under", "qaqc_id", "qaqc_findings",
+    "co2_soil_kt", "co2_offsite_kt", "co2_fire_kt", "co2_kt", "ch4_kt", "n2o_kt", "n2o_reported_under", "qaqc_id", "qaqc_findings",
 ]
 # column -> (unit, description): what the renderers print beside each column
 ORGANIC_SOILS_FIELDS = {
@@ -69,6 +69,7 @@ ORGANIC_SOILS_FIELDS = {
     "co2_offsite_kt": ("kt CO2", "off-site CO2 of the peat extracted for non-energy use (co2_offsite, 2006 GL "
                        "Vol. 4 Section 7.2.1.1), on a line of its own beside the extraction area"),
     "co2_fire_kt": ("kt CO2", "CO2 of organic-soil fires on the line's land category"),
+    "co2_kt": ("kt CO2", "CO2 of the line, every pathway (on-site, DOC, off-site peat, fires); blank with no estimate"),
     "ch4_kt": ("kt CH4", "CH4 of the soil and of ditches (ch4_soil + ch4_ditch)"),
     "n2o_kt": ("kt N2O", "N2O of the soil (n2o_soil)"),
     "n2o_reported_under": ("", "category the line's N2O is reported under"),
@@ -200,6 +201,8 @@ def organic_soils_table(emissions: pd.DataFrame, categories: pd.DataFrame, mass_
                                             table[f"_e_{name}"].to_numpy(dtype=float) * to_unit / area, np.nan)
     for column in measures:  # blank where no estimate row lies behind the sum
         table[column] = table[column].where(table[f"_n_{column}"] > 0)
+    co2 = ["co2_soil_kt", "co2_offsite_kt", "co2_fire_kt"]
+    table["co2_kt"] = table[co2].sum(axis=1, min_count=1)
     table["qaqc_id"] = IEF_CHECK + " " + table["land_category_code"] + " " + table["year"].astype(str)
     counts = _finding_counts(findings)
     table["qaqc_findings"] = [counts.get((c, int(y)), 0) for c, y in zip(table["land_category_code"], table["year"])]

@@ -49,6 +49,7 @@ def add_sheets(wb, result) -> None:
     o = tables.organic_soils
     fmt = {c: "0.000####" for c in o.columns if c.startswith("ief_")}
     fmt.update({"area_kha": "#,##0.000", "co2_soil_kt": FORMATS["kt"], "co2_fire_kt": FORMATS["kt"],
+                "co2_offsite_kt": FORMATS["kt"], "co2_kt": FORMATS["kt"],
                 "ch4_kt": "#,##0.000000", "n2o_kt": "#,##0.000000", "year": FORMATS["int"],
                 "qaqc_findings": FORMATS["int"]})
     _sheet(wb, "organic_soils", ORGANIC_SOILS_COLUMNS, _organic_rows(o), fmt,
@@ -121,10 +122,10 @@ def report_context(result) -> dict:
     latest = o[o["year"] == tables.latest_year]
     soils = [{
         "code": r["land_category_code"], "line": r["line"], "status": r["soil_status"],
-        "zone": r["climate_zone"] + (f", {r['nutrient_status']}" if r["nutrient_status"] else ""),
+        "zone": ", ".join(v for v in (r["climate_zone"], r["nutrient_status"]) if v),
         "area": _num(r["area_kha"], 2), "ief_onsite": _num(r["ief_co2_onsite"], 2), "ief_doc": _num(r["ief_co2_doc"], 2),
         "ief_ch4": _num(r["ief_ch4_soil"], 1), "ief_ditch": _num(r["ief_ch4_ditch"], 0),
-        "ief_n2o": _num(r["ief_n2o_soil"], 2), "co2": _num(float(np.nansum([r["co2_soil_kt"], r["co2_fire_kt"]])), 2),
+        "ief_n2o": _num(r["ief_n2o_soil"], 2), "co2": _num(r["co2_kt"], 2),
         "ch4": _num(r["ch4_kt"], 3), "n2o": _num(r["n2o_kt"], 4),
     } for r in latest.to_dict("records")]
     g = tables.gas_series
