@@ -165,7 +165,7 @@ def _header(name: str) -> str:
     return HEADER_ALIASES.get(norm, norm)
 
 
-class _Checker:
+class CellChecker:
     """Collects findings for one file, listing at most MAX_LISTED rows per problem."""
 
     def __init__(self, log: FindingLog, file: str, sheet: str):
@@ -191,7 +191,7 @@ class _Checker:
 
 
 def _check_characters(raw: pd.DataFrame, stripped: pd.Series, unflagged: pd.Series, col: Column,
-                      check: _Checker) -> np.ndarray:
+                      check: CellChecker) -> np.ndarray:
     """Noncharacters (any text), format characters and look-alike letters (names): rows refused.
 
     Every character concerned is outside ASCII, so only the non-ASCII cells are searched, and the
@@ -249,7 +249,7 @@ def _number_expected(decimal_comma: bool) -> str:
             "1234.5 not 1,234.5 or 1 234.5)")
 
 
-def validate_columns(raw: pd.DataFrame, spec: list[Column], check: _Checker, settings: Settings | None,
+def validate_columns(raw: pd.DataFrame, spec: list[Column], check: CellChecker, settings: Settings | None,
                      decimal_comma: bool = False) -> pd.DataFrame:
     """Check every cell against ``spec``; return a typed frame (rows with errors are kept but flagged)."""
     given = [c for c in raw.columns if c != ROW]
@@ -405,20 +405,20 @@ def _load(path: Path, sheet: str, spec: list[Column], log: FindingLog, settings:
     raw, sheet_name, notes = read_table(path, sheet, settings.max_input_mb)
     log.extend(notes)
     decimal_comma = any(n.check == "read" and n.found == ";" for n in notes)  # the reader's delimiter note
-    check = _Checker(log, str(path), sheet_name)
+    check = CellChecker(log, str(path), sheet_name)
     frame = validate_columns(raw, spec, check, settings, decimal_comma)
     frame.attrs["file"], frame.attrs["sheet"] = str(path), sheet_name
     return frame, sheet_name
 
 
-def _load_optional(path: Path | None, spec: list[Column], log: FindingLog,
-                   settings: Settings) -> tuple[pd.DataFrame, "_Checker | None"]:
+def load_optional(path: Path | None, spec: list[Column], log: FindingLog,
+                   settings: Settings) -> tuple[pd.DataFrame, "CellChecker | None"]:
     """An optional input file read against ``spec``: (frame, checker), or (empty frame, None) when the file is
     not given or has no usable rows."""
     if path is None:
         return pd.DataFrame(), None
     frame, sheet = _load(path, "", spec, log, settings)
-    return frame, (None if frame.empty else _Checker(log, str(path), sheet))
+    return frame, (None if frame.empty else CellChecker(log, str(path), sheet))
 
 
 def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
@@ -435,7 +435,7 @@ def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
         frame, sheet = _load(settings.activity, settings.activity_sheet, ACTIVITY_COLUMNS, log, settings)
     if frame.empty:
         return frame
-    check = _Checker(log, str(settings.activity), sheet)
+    check = CellChecker(log, str(settings.activity), sheet)
     from .transition import apply_transition
 
     apply_transition(frame, settings.transition_years, check)
@@ -463,7 +463,7 @@ def load_activity(settings: Settings, log: FindingLog) -> pd.DataFrame:
     return frame
 
 
-def _check_duplicates(keys: pd.DataFrame, check: _Checker) -> None:
+def _check_duplicates(keys: pd.DataFrame, check: CellChecker) -> None:
     """One row per year, region and stratum; says whether the repeated rows are copies or conflict."""
     # Rows of one stratum converted in different years (conversion_year) are separate parts of it.
     stratum_keys = STRATUM_KEYS + (["conversion_year"] if "conversion_year" in keys else [])
@@ -486,7 +486,7 @@ def _check_duplicates(keys: pd.DataFrame, check: _Checker) -> None:
                "the stratum, otherwise correct the row")
 
 
-def _check_region_spellings(keys: pd.DataFrame, check: _Checker) -> None:
+def _check_region_spellings(keys: pd.DataFrame, check: CellChecker) -> None:
     """Regions that differ only in case or spacing are probably one region typed twice: a warning."""
     regions = pd.Series(pd.unique(keys["region"]))
     folded = regions.str.casefold().str.split().str.join(" ")
@@ -507,7 +507,7 @@ def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
         keys = ["year", "region", "climate_zone", "land_use", "soil_status", "fire_type", "remaining_or_converted"]
         good = frame[~frame["_bad"]]
         dup = good[good.duplicated(keys, keep=False)]
-        _Checker(log, str(settings.fires), sheet).rows(
+        CellChecker(log, str(settings.fires), sheet).rows(
             "error", "duplicate", "the same fire (year, region, stratum, fire type) appears in more than one row", dup,
             "year", dup["region"].astype(str), "one row per fire stratum and year (add the burnt areas together)")
     return frame
@@ -536,14 +536,14 @@ def check_fires_within_strata(fires: pd.DataFrame, activity: pd.DataFrame, log: 
                        for b, a, y, r, c, lu, st in zip(over["burned_ha"], available[over.index], over["year"],
                                                          over["region"], over["climate_zone"], over["land_use"],
                                                          over["soil_status"])], index=over.index, dtype=object)
-    _Checker(log, fires.attrs.get("file", ""), fires.attrs.get("sheet", "")).rows(
+    CellChecker(log, fires.attrs.get("file", ""), fires.attrs.get("sheet", "")).rows(
         "error", "fire", "the fire burns more hectares than its stratum holds", over, "burned_ha", found,
         "at most the stratum's area_ha in the activity data (same year, region, climate zone, land use and soil "
         "status)", cut=False)
 
 
 def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
-    frame, check = _load_optional(settings.overrides, OVERRIDE_COLUMNS, log, settings)
+    frame, check = load_optional(settings.overrides, OVERRIDE_COLUMNS, log, settings)
     if check is None:
         return frame
     file, sheet = check.file, check.sheet
@@ -614,7 +614,7 @@ def load_review(settings: Settings, log: FindingLog, register_ids: set[str]) -> 
     frame, sheet = _load(settings.factor_review, "", REVIEW_COLUMNS, log, settings)
     if frame.empty:
         return frame
-    check = _Checker(log, str(settings.factor_review), sheet)
+    check = CellChecker(log, str(settings.factor_review), sheet)
     frame["result"] = frame["result"].map(normalise_text)
     bad = frame[~frame["result"].isin(["agrees", "differs"])]
     check.rows("error", "review", "result must be agrees or differs", bad, "result", bad["result"], "agrees | differs")
@@ -626,7 +626,7 @@ def load_review(settings: Settings, log: FindingLog, register_ids: set[str]) -> 
 
 def load_surrogates(settings: Settings, log: FindingLog) -> pd.DataFrame:
     """Driver series for the overlap (Eq. 5.1) and surrogate (Eq. 5.2) techniques; empty without the input."""
-    frame, check = _load_optional(settings.surrogates, SURROGATE_COLUMNS, log, settings)
+    frame, check = load_optional(settings.surrogates, SURROGATE_COLUMNS, log, settings)
     if check is None:
         return frame
     file = check.file
@@ -653,7 +653,7 @@ def load_review_log(settings: Settings, log: FindingLog, category_codes: set[str
         return pd.DataFrame()
     raw, sheet, notes = read_table(settings.review_log, "", settings.max_input_mb)
     log.extend(notes)
-    check = _Checker(log, str(settings.review_log), sheet)
+    check = CellChecker(log, str(settings.review_log), sheet)
     frame = validate_columns(raw, REVIEW_LOG_COLUMNS, check, None)
     if frame.empty:
         return frame

@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import dataclasses
 
-from .factors import FactorLibrary, FactorTableError, _read_csv
+from .factors import FactorLibrary, FactorTableError, read_shipped_csv
 
 SCHEME_FILES = {
     "ipcc2006": ("reporting_categories.csv", "reporting_allocation.csv"),
@@ -44,8 +44,8 @@ def with_allocation(library: FactorLibrary, scheme: str) -> FactorLibrary:
     missing = [n for n in (categories_file, allocation_file) if n not in library.files]
     if missing:
         raise FactorTableError(f"factor_tables is missing {', '.join(missing)} (allocation = {scheme!r})")
-    categories = _read_csv(library.files[categories_file])
-    allocation = _read_csv(library.files[allocation_file])
+    categories = read_shipped_csv(library.files[categories_file])
+    allocation = read_shipped_csv(library.files[allocation_file])
     unresolved = (set(categories["source_id"]) | set(allocation["source_id"])) - set(library.sources["source_id"])
     if unresolved:
         raise FactorTableError(f"{allocation_file}: source_id {sorted(unresolved)} not in sources.csv")

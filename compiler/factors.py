@@ -63,7 +63,7 @@ class FactorTableError(CompilerError):
     """A shipped factor table breaks its own rules (a defect of the package data)."""
 
 
-def _read_csv(path: Path) -> pd.DataFrame:
+def read_shipped_csv(path: Path) -> pd.DataFrame:
     return pd.read_csv(path, dtype=str, keep_default_na=False, encoding="utf-8")
 
 
@@ -107,10 +107,10 @@ def load_library(folder: Path | None = None) -> FactorLibrary:
     missing = [n for n in needed if n not in files]
     if missing:
         raise FactorTableError(f"factor_tables is missing {', '.join(missing)} (looked in {folder})")
-    sources = _read_csv(files["sources.csv"])
+    sources = read_shipped_csv(files["sources.csv"])
     frames = []
     for path in sorted(p for pattern in TABLE_PATTERNS for p in folder.glob(pattern)):
-        table = _read_csv(path)
+        table = read_shipped_csv(path)
         table["origin"] = path.name
         frames.append(table)
     if not frames:
@@ -122,17 +122,17 @@ def load_library(folder: Path | None = None) -> FactorLibrary:
     register["tier"] = "Tier 1 default"
     register = _check_register(register, sources)
     register["citation"] = register["source_id"].map(dict(zip(sources["source_id"], sources["citation"])))
-    gwp = _read_csv(files["gwp.csv"])
+    gwp = read_shipped_csv(files["gwp.csv"])
     gwp["value"] = pd.to_numeric(gwp["value"])
     unresolved = set(gwp["source_id"]) - set(sources["source_id"])
     if unresolved:
         raise FactorTableError(f"gwp.csv: source_id {sorted(unresolved)} not in sources.csv")
     return FactorLibrary(
         register=register[REGISTER_COLUMNS], sources=sources, gwp=gwp,
-        categories=_read_csv(files["reporting_categories.csv"]),
-        allocation=_read_csv(files["reporting_allocation.csv"]),
-        coverage=_read_csv(files["pathway_coverage.csv"]),
-        climate_2006=_read_csv(files["climate_zones_ipcc2006.csv"]),
+        categories=read_shipped_csv(files["reporting_categories.csv"]),
+        allocation=read_shipped_csv(files["reporting_allocation.csv"]),
+        coverage=read_shipped_csv(files["pathway_coverage.csv"]),
+        climate_2006=read_shipped_csv(files["climate_zones_ipcc2006.csv"]),
         files=files,
     )
 

@@ -37,7 +37,7 @@ import numpy as np
 import pandas as pd
 
 from . import equations
-from .activity import MAX_NOTE_CHARS, Column, _Checker, _load_optional
+from .activity import MAX_NOTE_CHARS, Column, CellChecker, load_optional
 from .schema import RESULT_COLUMNS
 from .errors import FindingLog
 from .factors import KEYS, FactorLibrary, apply_overrides, resolve_defaults
@@ -92,7 +92,7 @@ def load_peat_production(settings: Settings, log: FindingLog) -> pd.DataFrame:
     (the volume conversion, blank otherwise) and ``estimated`` (not bad, not energy use). Empty
     without the input.
     """
-    frame, check = _load_optional(settings.peat_production, PEAT_COLUMNS, log, settings)
+    frame, check = load_optional(settings.peat_production, PEAT_COLUMNS, log, settings)
     if check is None:
         return frame
     bad = frame["_bad"].to_numpy().copy()
@@ -179,7 +179,7 @@ def offsite_rows(peat: pd.DataFrame, library: FactorLibrary, register: pd.DataFr
     frame = match.assign(region=rows["region"], year=rows["year"].astype(int), factor_id=default)
     ids = apply_overrides(frame, overrides, QUANTITY)
     missing = ids.isna().to_numpy()
-    check = _Checker(log, peat.attrs.get("file", ""), peat.attrs.get("sheet", ""))
+    check = CellChecker(log, peat.attrs.get("file", ""), peat.attrs.get("sheet", ""))
     check.rows("error", "factor_missing", f"no {QUANTITY} factor for this nutrient status in the "
                f"{settings.factor_set} set", rows[missing], "nutrient_status", rows["nutrient_status"],
                "an override of c_fraction_peat with its source in [inputs] overrides")
@@ -247,7 +247,7 @@ def check_production(peat: pd.DataFrame, activity: pd.DataFrame, settings: Setti
                     expected="[inputs] peat_production with the tonnes extracted per year, or a note in the "
                              "inventory report that no peat is taken off site")
         return
-    check = _Checker(log, peat.attrs.get("file", ""), peat.attrs.get("sheet", ""))
+    check = CellChecker(log, peat.attrs.get("file", ""), peat.attrs.get("sheet", ""))
     good = peat[~peat["_bad"]].copy()
     if good.empty:
         return

@@ -161,14 +161,14 @@ def load_parcel_activity(settings, log: FindingLog) -> tuple[pd.DataFrame, str]:
     parse back to the same numbers, so a parcel file compiles exactly as the CSV of its stratum
     table would. Returns ``(frame, sheet)`` as the CSV loader does (sheet is blank).
     """
-    from .activity import ACTIVITY_COLUMNS, _Checker, validate_columns
+    from .activity import ACTIVITY_COLUMNS, CellChecker, validate_columns
     from .readers import ROW
 
     path = Path(settings.activity)
     table = aggregate_parcels(path, getattr(settings, "engine", "duckdb"), log)
     if table.empty:
         return pd.DataFrame(), ""
-    frame = validate_columns(stratum_cells(table, ROW), ACTIVITY_COLUMNS, _Checker(log, str(path), ""), settings)
+    frame = validate_columns(stratum_cells(table, ROW), ACTIVITY_COLUMNS, CellChecker(log, str(path), ""), settings)
     frame["parcel_count"] = table["parcel_count"].to_numpy()
     frame.attrs["file"], frame.attrs["sheet"] = str(path), ""
     return frame, ""

@@ -78,7 +78,7 @@ def read_table(path: Path, sheet: str = "", max_mb: float = 512) -> tuple[pd.Dat
     check_size(path, max_mb)
     suffix = path.suffix.lower()
     if suffix in (".csv", ".txt", ".tsv"):
-        frame, notes = _read_csv(path)
+        frame, notes = read_shipped_csv(path)
         return frame, "", notes
     if suffix in (".xlsx", ".xlsm"):
         return _read_xlsx(path, sheet, max_mb)
@@ -103,7 +103,7 @@ def _decode(data: bytes, fname: str) -> str:
                      "probably Latin-1 or Windows-1252, an older 'CSV' export)", fname, expected=UTF8_EXPORT) from None
 
 
-def _read_csv(path: Path) -> tuple[pd.DataFrame, list[Finding]]:
+def read_shipped_csv(path: Path) -> tuple[pd.DataFrame, list[Finding]]:
     fname = str(path)
     data = path.read_bytes()
     if not data.strip():

@@ -60,7 +60,7 @@ HALF = (3.55, 2.75)  # inches: a chart of half the page width (two side by side)
 _ID = re.compile(r'(\bid="|url\(#|xlink:href="#)')
 
 
-def _svg(fig, name: str = "") -> str:
+def svg_text(fig, name: str = "") -> str:
     """The figure as SVG text; its ids prefixed with ``name`` so that charts inlined in one page never share one.
 
     A figure with a constrained layout keeps its size (charts side by side then share one text size);
@@ -157,7 +157,7 @@ def _stacked_chart(emissions: pd.DataFrame, column: str, styles: dict, title: st
     _stack(ax, _kt(est, column), styles, labels)
     ax.set_ylabel("kt CO2-eq per year")
     ax.set_title(title, loc="left")
-    return _svg(fig, column)
+    return svg_text(fig, column)
 
 
 def emissions_by_pathway(emissions: pd.DataFrame) -> str:
@@ -183,7 +183,7 @@ def area_by_status(activity: pd.DataFrame) -> str:
     ax.set_ylim(0, None if table.to_numpy().max() > 0 else 1)
     ax.set_title("Drained and rewetted organic-soil area", loc="left")
     _legend_below(ax)
-    return _svg(fig, "area")
+    return svg_text(fig, "area")
 
 
 def contribution_by_gas(emissions: pd.DataFrame) -> str:
@@ -221,7 +221,7 @@ def recalculation_series(by_cell: pd.DataFrame) -> str:
     ax.set_ylabel("kt CO2-eq per year")
     ax.set_title("Net emissions: previous and current submission", loc="left")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
-    return _svg(fig, "recalculation")
+    return svg_text(fig, "recalculation")
 
 
 def uncertainty_intervals(summary: pd.DataFrame, year: int) -> str:
@@ -238,7 +238,7 @@ def uncertainty_intervals(summary: pd.DataFrame, year: int) -> str:
     ax.axvline(0, color="#444444", linewidth=0.5)
     ax.set_xlabel("95 % interval, percent of the estimate")
     ax.set_title(f"Uncertainty of each category and gas, {year} (Approach 2)", loc="left")
-    return _svg(fig, "uncertainty")
+    return svg_text(fig, "uncertainty")
 
 
 def key_category_shares(table: pd.DataFrame, column: str, cumulative: str, threshold: float, title: str) -> str:
@@ -257,4 +257,4 @@ def key_category_shares(table: pd.DataFrame, column: str, cumulative: str, thres
     ax.set_ylim(0, 105)
     ax.set_title(title, loc="left")
     ax.legend(loc="center right", frameon=False)
-    return _svg(fig, "key-level")
+    return svg_text(fig, "key-level")

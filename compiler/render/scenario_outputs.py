@@ -15,7 +15,7 @@ from . import charts
 from ..schema import FINDING_COLUMNS
 from .outputs import atomic_folder, input_files
 from .report import RestrictedFetcher
-from .workbook import _fix_zip, _sheet, _records, FORMATS
+from .workbook import FORMATS, finish_workbook, sheet_records, write_sheet
 
 SCENARIO_CAUTIONS = [
     ("Scenarios are not forecasts.", "They show what the stated assumptions imply, on the same strata and factors as "
@@ -40,7 +40,7 @@ def _lines(frame: pd.DataFrame, column: str, ylabel: str, title: str, scale: flo
     ax.set_ylabel(ylabel)
     ax.set_title(title, loc="left")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
-    return charts._svg(fig, column)
+    return charts.svg_text(fig, column)
 
 
 def scenario_charts(outcome) -> dict[str, str]:
@@ -86,15 +86,15 @@ def _workbook(result, outcome, em, areas, path: Path) -> None:
         cols = [str(c) for c in frame.columns]
         fmt = {c: "0.000E+00" if ("forcing" in c or "temperature" in c or "agwp" in c or "agtp" in c) else FORMATS["t"]
                for c in cols if pd.api.types.is_float_dtype(frame[c])}
-        _sheet(wb, title, cols, _records(frame, cols), fmt, notes=notes if title == "summary" else ())
+        write_sheet(wb, title, cols, sheet_records(frame, cols), fmt, notes=notes if title == "summary" else ())
     findings = pd.DataFrame([f.as_record() for f in outcome.findings] or None,
                             columns=FINDING_COLUMNS)
-    _sheet(wb, "findings", list(findings.columns), _records(findings, list(findings.columns)), widths={"message": 80})
+    write_sheet(wb, "findings", list(findings.columns), sheet_records(findings, list(findings.columns)), widths={"message": 80})
     stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00")
     wb.properties.created = stamp
     buffer = io.BytesIO()
     wb.save(buffer)
-    _fix_zip(buffer.getvalue(), stamp, None, path)
+    finish_workbook(buffer.getvalue(), stamp, None, path)
 
 
 def _report(result, outcome, folder: Path) -> None:

@@ -43,7 +43,7 @@ def _organic_rows(frame: pd.DataFrame):
 
 def add_sheets(wb, result) -> None:
     """The three submission sheets, appended after the workbook's other sheets."""
-    from .workbook import FORMATS, _records, _sheet
+    from .workbook import FORMATS, sheet_records, write_sheet
 
     tables = reporting_tables(result)
     o = tables.organic_soils
@@ -52,14 +52,14 @@ def add_sheets(wb, result) -> None:
                 "co2_offsite_kt": FORMATS["kt"], "co2_kt": FORMATS["kt"],
                 "ch4_kt": "#,##0.000000", "n2o_kt": "#,##0.000000", "year": FORMATS["int"],
                 "qaqc_findings": FORMATS["int"]})
-    _sheet(wb, "organic_soils", ORGANIC_SOILS_COLUMNS, _organic_rows(o), fmt,
+    write_sheet(wb, "organic_soils", ORGANIC_SOILS_COLUMNS, _organic_rows(o), fmt,
            {"land_category_name": 32, "line": 30, "qaqc_id": 34}, SHEET_NOTES["organic_soils"])
     years = tables.year_columns
     for title, frame in (("timeseries_gases", tables.gas_series), ("timeseries_categories", tables.category_series)):
         cols = list(frame.columns)
         fmt = {y: "#,##0.000000" for y in years}
         fmt["trend_pct"] = "0.00"
-        _sheet(wb, title, cols, _records(frame, cols), fmt, {"category_name": 34}, SHEET_NOTES[title],
+        write_sheet(wb, title, cols, sheet_records(frame, cols), fmt, {"category_name": 34}, SHEET_NOTES[title],
                freeze="E2" if "category_code" in cols else "C2")
 
 

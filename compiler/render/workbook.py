@@ -59,7 +59,7 @@ def _header(ws, names):
     ws.append(row)
 
 
-def _sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), freeze="A2"):
+def write_sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), freeze="A2"):
     """A table sheet: optional note lines, a header row, data rows."""
     ws = wb.create_sheet(title)
     formats = formats or {}
@@ -84,7 +84,7 @@ def _letter(index: int) -> str:
     return get_column_letter(index + 1)
 
 
-def _records(frame: pd.DataFrame, columns):
+def sheet_records(frame: pd.DataFrame, columns):
     data = frame[columns]
     return data.itertuples(index=False, name=None)
 
@@ -124,7 +124,7 @@ def write_workbook(result, path: Path) -> None:
              f"with histosol {result.version}",
              "Tier 1 defaults are coarse; key categories deserve higher tiers; estimates must pass the national QA/QC plan.",
              "Notation keys: " + "; ".join(f"{k} = {v}" for k, v in NOTATION_KEYS.items())]
-    _sheet(wb, "summary", ["category_code", "category_name", "gas", "unit", *map(str, shown),
+    write_sheet(wb, "summary", ["category_code", "category_name", "gas", "unit", *map(str, shown),
                            *(["change"] if len(shown) == 2 else [])],
            summary_rows, {**{str(y): FORMATS["kt"] for y in shown}, "change": FORMATS["pct"]},
            {"category_name": 40, "category_code": 14}, notes)
@@ -133,11 +133,11 @@ def write_workbook(result, path: Path) -> None:
     years = list(agg.years)
     wide = [(code, name, gas, "k" + unit, *map(kt, values))
             for code, name, gas, unit, *values in cells.itertuples(index=False, name=None)]
-    _sheet(wb, "categories", ["category_code", "category_name", "gas", "unit", *map(str, years)], wide,
+    write_sheet(wb, "categories", ["category_code", "category_name", "gas", "unit", *map(str, years)], wide,
            {str(y): FORMATS["kt"] for y in years}, {"category_name": 36}, freeze="E2")
 
     # reporting cells in tonnes of gas, long form, with notation reasons
-    _sheet(wb, "categories_long", list(cats.columns), _records(cats, list(cats.columns)),
+    write_sheet(wb, "categories_long", list(cats.columns), sheet_records(cats, list(cats.columns)),
            {"area_ha": FORMATS["ha"], "emission_t": FORMATS["t"], "co2eq_t": FORMATS["t"]},
            {"category_name": 36, "notation_reason": 60})
 
@@ -149,10 +149,10 @@ def write_workbook(result, path: Path) -> None:
            "co2eq_t": FORMATS["t"], "emission_basis_t": FORMATS["t"], "factor_value": FORMATS["factor"],
            "parameter_value": FORMATS["factor"], "year": FORMATS["int"], "input_row": FORMATS["int"]}
     parts = max(1, int(np.ceil(len(em) / chunk)))
-    bulk: dict[int, _Stream] = {}  # sheet number in the file -> its data rows, written as XML by _fix_zip
+    bulk: dict[int, _Stream] = {}  # sheet number in the file -> its data rows, written as XML by finish_workbook
     for i in range(parts):
         title = "strata" if parts == 1 else f"strata_{i + 1}"
-        _sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30})
+        write_sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30})
         bulk[len(wb.worksheets)] = _Stream(em, EXPORT_COLUMNS, i * chunk, min((i + 1) * chunk, len(em)))
 
     # trace: every category-gas cell of the base and latest year, linked to its strata and factor rows
@@ -176,14 +176,14 @@ def write_workbook(result, path: Path) -> None:
     tnotes = [f"Every category-gas cell of {base} and {latest}: its strata rows (row number in the strata sheet), "
               "factor (row in the factors sheet), and emission_t = area_basis_ha x factor_value x conversion "
               "(fires: burnt area x fuel x factor x conversion); the rows of a cell add up to cell_total_t."]
-    ws = _sheet(wb, "trace", tcols, [], tfmt, {"factor_id": 30}, tnotes)
+    ws = write_sheet(wb, "trace", tcols, [], tfmt, {"factor_id": 30}, tnotes)
     bulk[len(wb.worksheets)] = _Stream(trace, tcols, 0, len(trace), top_row=len(tnotes) + 2,
                                        styles=_style_ids(ws, tcols, tfmt))
 
     if result.recalculation is not None:
         rc = result.recalculation["by_cell"]
         rcols = list(rc.columns)
-        _sheet(wb, "recalculations", rcols, _records(rc, rcols), {c: FORMATS["t"] for c in rcols[3:]},
+        write_sheet(wb, "recalculations", rcols, sheet_records(rc, rcols), {c: FORMATS["t"] for c in rcols[3:]},
                notes=[f"Current submission minus the previous one ({result.recalculation['file']}), t and t CO2-eq. "
                       "dE = (A1 - A0) x EF0 (activity change) + A1 x (EF1 - EF0) (factor change, including GWP or "
                       "factor-set changes); strata added or removed; allocation change. The parts add up to "
@@ -194,7 +194,7 @@ def write_workbook(result, path: Path) -> None:
                       f"current {result.recalculation['current_trend_pct']:.2f} %."])
     fills = result.gap_fills
     if not fills.empty:
-        _sheet(wb, "gap_filling", list(fills.columns), _records(fills, list(fills.columns)),
+        write_sheet(wb, "gap_filling", list(fills.columns), sheet_records(fills, list(fills.columns)),
                {"area_ha": FORMATS["ha"], "year": FORMATS["int"]}, {"fill_basis": 70},
                notes=[f"{len(fills)} stratum-years not in the activity data, filled by the techniques of 2006 IPCC "
                       "Guidelines Vol. 1 Ch. 5: linear interpolation, trend extrapolation, overlap (Eq. 5.1) or "
@@ -202,7 +202,7 @@ def write_workbook(result, path: Path) -> None:
                       "input_row 0."])
     if result.review_log is not None and not result.review_log.empty:
         rl = result.review_log.drop(columns=[c for c in ("_row", "_bad") if c in result.review_log])
-        _sheet(wb, "review_log", list(rl.columns), _records(rl, list(rl.columns)), widths={"finding": 60,
+        write_sheet(wb, "review_log", list(rl.columns), sheet_records(rl, list(rl.columns)), widths={"finding": 60,
                                                                                              "response": 50})
 
     _analysis_sheets(wb, result)
@@ -215,7 +215,7 @@ def write_workbook(result, path: Path) -> None:
              "drainage_depth", "subtype", "fire_type", "value", "unit", "ci_low", "ci_high", "tier", "agency_check",
              "table", "row_label", "page", "citation", "region", "first_year", "last_year",
              "reviewed_by", "reviewed_on", "reviewed_against"]
-    _sheet(wb, "factors", fcols, _records(f, fcols), {"value": FORMATS["factor"], "ci_low": FORMATS["factor"],
+    write_sheet(wb, "factors", fcols, sheet_records(f, fcols), {"value": FORMATS["factor"], "ci_low": FORMATS["factor"],
                                                      "ci_high": FORMATS["factor"]},
            {"factor_id": 32, "citation": 60, "row_label": 44, "agency_check": 16},
            ["Every factor used in this compile, with its source. agency_check: the agency's check of a shipped "
@@ -224,11 +224,11 @@ def write_workbook(result, path: Path) -> None:
             "by the tool's authors: check them before official use."])
 
     fd = result.findings
-    _sheet(wb, "findings", list(fd.columns), _records(fd, list(fd.columns)), {"row": FORMATS["int"]},
+    write_sheet(wb, "findings", list(fd.columns), sheet_records(fd, list(fd.columns)), {"row": FORMATS["int"]},
            {"message": 80, "file": 30, "expected": 40})
 
     settings_rows = s.as_table() + [(f"input sha256: {k}", v, "") for k, v in sorted(result.input_hashes.items())]
-    _sheet(wb, "settings", ["setting", "value", "description"], settings_rows, widths={"setting": 44, "value": 66,
+    write_sheet(wb, "settings", ["setting", "value", "description"], settings_rows, widths={"setting": 44, "value": 66,
                                                                                         "description": 60})
 
     from .submission import add_sheets
@@ -240,11 +240,11 @@ def write_workbook(result, path: Path) -> None:
     wb.properties.created = stamp
     buffer = io.BytesIO()
     wb.save(buffer)
-    _fix_zip(buffer.getvalue(), stamp, bulk, path)
+    finish_workbook(buffer.getvalue(), stamp, bulk, path)
 
 
 class _Stream(NamedTuple):
-    """Data rows of one sheet, streamed as XML by :func:`_fix_zip` after openpyxl has written its head
+    """Data rows of one sheet, streamed as XML by :func:`finish_workbook` after openpyxl has written its head
     (notes and header): rows ``first:stop`` of ``frame[columns]``, the first on sheet row ``top_row``;
     ``styles`` gives the cell style id of each numeric column (None: no number format)."""
 
@@ -341,7 +341,7 @@ def _table(wb, title, frame: pd.DataFrame, notes=(), widths=None):
     cols = [str(c) for c in frame.columns]
     frame.columns = cols
     fmt = {c: FORMATS["t"] for c in cols if pd.api.types.is_float_dtype(frame[c])}
-    _sheet(wb, title, cols, _records(frame, cols), fmt, widths, list(notes))
+    write_sheet(wb, title, cols, sheet_records(frame, cols), fmt, widths, list(notes))
 
 
 def _analysis_sheets(wb, result) -> None:
@@ -385,7 +385,7 @@ def _set_compression(entry: zipfile.ZipInfo, level: int) -> None:
         entry._compresslevel = level
 
 
-def _fix_zip(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] | None, path: Path) -> None:
+def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] | None, path: Path) -> None:
     """Write the workbook to ``path`` with the same bytes for the same content: fixed entry dates and
     document timestamps; the strata rows streamed into their sheets, a piece at a time.
 
