@@ -11,7 +11,7 @@ import sys
 from pathlib import Path
 
 from . import __version__
-from .errors import CompilerError, InputError
+from .errors import CompilerError, Finding, InputError
 
 EXIT_OK, EXIT_FINDINGS, EXIT_INPUT = 0, 1, 2
 
@@ -219,7 +219,13 @@ def _compare(args) -> int:
     by_cell, _ = compare(previous, current)
     if args.csv:
         by_cell.to_csv(args.csv, index=False, lineterminator="\n")
-    year = args.year or int(by_cell["year"].max())
+    covered = sorted(int(y) for y in by_cell["year"].unique())
+    if not covered:
+        raise InputError("the two exports share no year: nothing to compare")
+    year = args.year or covered[-1]
+    if year not in covered:
+        raise InputError(Finding("error", "compare", "this year is not in both exports", column="--year",
+                                 found=str(year), expected=f"a year both cover, {covered[0]} to {covered[-1]}"))
     view = by_cell[by_cell["year"] == year]
     view = view[(view["difference_co2eq_t"].abs() > 1e-9) | (view["difference_t"].abs() > 1e-9)]
     print(f"Recalculations for {year}: current minus previous, t CO2-eq, split by cause")

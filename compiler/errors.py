@@ -63,7 +63,8 @@ class Finding:
         if self.column:
             # A key of the settings file (section.key) is a setting, not a column.
             is_setting = "." in self.column and (not self.file or self.file.endswith(".toml"))
-            parts.append(f"{'setting' if is_setting else 'column'} {self.column}")
+            kind = "option" if self.column.startswith("--") else "setting" if is_setting else "column"
+            parts.append(f"{kind} {self.column}")
         return ", ".join(parts)
 
     def render(self, short: bool = False) -> str:

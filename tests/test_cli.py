@@ -8,6 +8,7 @@ import pandas as pd
 import pytest
 
 from compiler.cli import main
+from conftest import DEMO
 
 
 def run(capsys, *args):
@@ -144,3 +145,13 @@ def test_bad_input_leaves_previous_output(demo_copy, tmp_path, capsys):
     _edit_activity(demo_copy, lambda f: _set(f, 0, "area_ha", "abc"))
     assert run(capsys, "compile", str(demo_copy), "--out", str(out_dir))[0] == 2
     assert sorted((p.name, p.stat().st_mtime_ns) for p in out_dir.iterdir()) == before
+
+
+@pytest.mark.parametrize("year", ["2024", "1980", "2100"])
+def test_compare_a_year_not_in_both_exports_is_an_input_error(demo_output, capsys, year):
+    # The demo's previous export covers 1990-2023: a year outside what both cover is named, not a crash.
+    previous = DEMO / "previous" / "emissions.csv.gz"
+    code, out, err = run(capsys, "compare", str(previous), str(demo_output), "--year", year)
+    assert code == 2, err
+    assert f"option --year: this year is not in both exports; found '{year}'; expected a year both cover, 1990 to " \
+           "2023" in err
