@@ -181,3 +181,15 @@ class FindingLog:
     def raise_if_errors(self) -> None:
         if self.errors:
             raise InputError(self.findings)
+
+
+def findings_table(findings: Iterable[Finding]):
+    """Findings as a table (``result.findings``, the workbook's findings sheet): the columns of
+    :data:`compiler.schema.FINDING_COLUMNS`, ``row`` as a nullable integer."""
+    import pandas as pd
+
+    from .schema import FINDING_COLUMNS
+
+    frame = pd.DataFrame([f.as_record() for f in findings] or None, columns=FINDING_COLUMNS)
+    frame["row"] = frame["row"].astype("Int64")
+    return frame

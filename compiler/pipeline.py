@@ -22,12 +22,12 @@ from .aggregate import Aggregates, aggregate
 from .allocation_schemes import with_allocation
 from .categories import allocate, category_table
 from .engine import compute
-from .errors import Finding, FindingLog, InputError, QaqcError
+from .errors import Finding, FindingLog, InputError, QaqcError, findings_table
 from .factors import FactorLibrary, file_sha256, load_library
 from .metrics import co2_equivalent, gwp_table
 from .settings import Settings, load_settings
 from .progress import stage
-from .schema import FINDING_COLUMNS, GAP_FILL_COLUMNS, SERIES_KEYS
+from .schema import GAP_FILL_COLUMNS, SERIES_KEYS
 from .timeseries import fill_gaps
 from .units import conversion_factor
 
@@ -121,10 +121,9 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     log.raise_if_errors()
     # One order whatever the order of the input rows, so that every sum below adds in the same order and
     # the outputs do not depend on how the rows were sorted in the file (the index still names the record).
-    activity = activity.iloc[np.lexsort([_sort_codes(activity[k]) for k in reversed(["year", *SERIES_KEYS])])]
+    activity = _in_order(activity, ["year", *SERIES_KEYS])
     if fires is not None and not fires.empty:
-        fire_keys = [k for k in ["year", *SERIES_KEYS, "fire_type", "burned_ha"] if k in fires]
-        fires = fires.iloc[np.lexsort([_sort_codes(fires[k]) for k in reversed(fire_keys)])]
+        fires = _in_order(fires, [k for k in ["year", *SERIES_KEYS, "fire_type", "burned_ha"] if k in fires])
 
     stage(progress, "computing emissions and removals")
     engine = compute(activity, fires, overrides, library, settings, log)
@@ -154,13 +153,12 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     _check_area_balance(activity, emissions, log)
     recalculation = None
     if previous is not None:
-        from .recalculations import compare, trend_effect
+        from .recalculations import FACTOR_PARTS, compare, trend_effect
 
         current = emissions[emissions["notation_key"] == ""]
         by_cell, by_row = compare(previous, current,
                                   factor_sets=dict(zip(library.register["factor_id"], library.register["factor_set"])))
-        parts = [c for c in ("gwp_change", "factor_set_change", "shipped_value_change", "override_change")
-                 if c in by_cell]
+        parts = [c for c in FACTOR_PARTS if c in by_cell]
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
                          "factor_parts_t": by_cell[parts].sum().to_dict(),  # all cells and common years [t CO2-eq]
                          **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
@@ -170,9 +168,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
 
     hashes = {name: file_sha256(path) for name, path in settings.input_paths().items()}
     hashes.update({f"factor_tables/{k}": v for k, v in library.hashes().items()})
-    findings = pd.DataFrame([f.as_record() for f in log.findings] or None,
-                            columns=FINDING_COLUMNS)
-    findings["row"] = findings["row"].astype("Int64")
+    findings = findings_table(log.findings)
     compile_date = settings.compile_date or _dt.date.today().isoformat()
     activity = activity[~activity["_bad"]].astype({"year": "int64"})
     result = InventoryResult(settings=settings, activity=activity, emissions=emissions,
@@ -218,6 +214,16 @@ def _sort_codes(column: pd.Series) -> np.ndarray:
     return np.where(codes < 0, len(uniques), codes)
 
 
+def _order(frame: pd.DataFrame, keys: list[str]) -> np.ndarray:
+    """Row positions of ``frame`` in the stable lexicographic order of ``keys`` (missing values last)."""
+    return np.lexsort([_sort_codes(frame[k]) for k in reversed(keys)])
+
+
+def _in_order(frame: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
+    """``frame`` in the order of ``keys``, its index kept (the index names the input record)."""
+    return frame.iloc[_order(frame, keys)]
+
+
 def _sorted(held: list[pd.DataFrame], keys: list[str]) -> pd.DataFrame:
     """``frame.sort_values(keys, kind="stable")`` with a fresh index, holding about one extra column at a time.
 
@@ -229,7 +235,7 @@ def _sorted(held: list[pd.DataFrame], keys: list[str]) -> pd.DataFrame:
     sort would hold twice.
     """
     frame = held.pop()
-    order = np.lexsort([_sort_codes(frame[k]) for k in reversed(keys)])
+    order = _order(frame, keys)
     columns = list(frame.columns)
     text = [c for c in columns if not pd.api.types.is_numeric_dtype(frame[c].dtype)
             and not pd.api.types.is_bool_dtype(frame[c].dtype)]
@@ -264,9 +270,7 @@ def _analyse(result: InventoryResult, progress, national: pd.DataFrame | None = 
     result.key_categories = key_categories(result, result.uncertainty, national_totals=national)
     extra = list(result.uncertainty.findings) + list(result.key_categories.findings)
     _merge_findings(result.finding_list, extra)
-    result.findings = pd.DataFrame([f.as_record() for f in result.finding_list] or None,
-                                   columns=list(result.findings.columns))
-    result.findings["row"] = result.findings["row"].astype("Int64")
+    result.findings = findings_table(result.finding_list)
 
 
 def _merge_findings(into: list[Finding], new) -> None:

@@ -51,10 +51,10 @@ import numpy as np
 import pandas as pd
 
 from .schema import CELL_KEYS as CELL
-from .schema import FINDING_COLUMNS, LAND_KEYS
+from .schema import LAND_KEYS
 from .schema import SERIES_KEYS as STRATUM_SERIES_KEYS
 from .row_model import ROW_MODELS, by_pathway
-from .errors import Finding, InputError
+from .errors import Finding, InputError, findings_table  # noqa: F401 (findings_table: part of this module's API)
 from .factors import QUANTITIES, unit_kind_ok
 from .offsite_peat import OFFSITE_PATHWAY
 from .readers import MAX_LISTED
@@ -1292,10 +1292,3 @@ def run_checks(result, thresholds: QaqcThresholds | None = None, national_totals
         result._qaqc_estimates = None
     order = {c.check: i for i, c in enumerate(CHECKS)}
     return sorted(findings, key=lambda f: order.get(f.check, len(order)))  # stable: keeps each check's order
-
-
-def findings_table(findings: list[Finding]) -> pd.DataFrame:
-    """Findings as a table with the columns of ``result.findings``."""
-    frame = pd.DataFrame([f.as_record() for f in findings] or None, columns=FINDING_COLUMNS)
-    frame["row"] = frame["row"].astype("Int64")
-    return frame
