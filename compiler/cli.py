@@ -215,6 +215,8 @@ def _compare(args) -> int:
 
     from .recalculations import PARTS, compare, load_export
 
+    if args.csv:
+        _refuse_csv_over_inputs(Path(args.csv), [Path(args.previous), Path(args.current)])
     previous, current = load_export(args.previous), load_export(args.current)
     by_cell, _ = compare(previous, current)
     if args.csv:
@@ -242,6 +244,19 @@ def _compare(args) -> int:
     total = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum().loc[year]
     print(f"Total {year}: {total['previous_co2eq_t'] / 1000:,.1f} -> {total['current_co2eq_t'] / 1000:,.1f} kt CO2-eq")
     return EXIT_OK
+
+
+def _refuse_csv_over_inputs(target: Path, given: list[Path]) -> None:
+    """``compare --csv`` may not write over what it compares, nor into an output folder it reads."""
+    import os
+
+    where = Path(os.path.realpath(target))
+    for path in given:
+        real = Path(os.path.realpath(path))
+        if where == real or (real.is_dir() and real in where.parents):
+            raise InputError(Finding("error", "compare", "the CSV file would overwrite or change an export being "
+                                     "compared; write it elsewhere", column="--csv", found=str(target),
+                                     expected=f"a path outside {path}"))
 
 
 def _trace(args) -> int:

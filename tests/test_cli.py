@@ -155,3 +155,21 @@ def test_compare_a_year_not_in_both_exports_is_an_input_error(demo_output, capsy
     assert code == 2, err
     assert f"option --year: this year is not in both exports; found '{year}'; expected a year both cover, 1990 to " \
            "2023" in err
+
+
+@pytest.mark.parametrize("target", ["previous_file", "current_folder_csv", "inside_current_folder"])
+def test_compare_csv_never_writes_over_what_it_compares(tmp_path, demo_output, capsys, target):
+    # Nothing the user gave is changed, whatever the arguments: --csv may not name a compared export or a file in
+    # a compared output folder.
+    import shutil
+
+    previous = tmp_path / "previous.csv.gz"
+    shutil.copy(DEMO / "previous" / "emissions.csv.gz", previous)
+    current = tmp_path / "current"
+    shutil.copytree(demo_output, current)
+    path = {"previous_file": previous, "current_folder_csv": current / "emissions.csv",
+            "inside_current_folder": current / "recalc.csv"}[target]
+    before = {p: p.read_bytes() for p in [previous, *current.iterdir()]}
+    code, _, err = run(capsys, "compare", str(previous), str(current), "--csv", str(path))
+    assert code == 2 and "option --csv: the CSV file would overwrite or change an export being compared" in err
+    assert {p: p.read_bytes() for p in [previous, *current.iterdir()]} == before
