@@ -11,7 +11,8 @@ and the run settings choose one (``[method] mass_ratios``):
     The whole-number ratios printed in the IPCC equations (44/12, 16/12,
     44/28), for agencies whose QA/QC plan fixes them. C -> CO2 = 3.6667.
 
-The two differ by less than 0.1 %; the report prints which one was used.
+The two differ by at most 0.18 % (CH4-C -> CH4: 16.043/12.011 = 1.3357 against 16/12 = 1.3333;
+C -> CO2 by 0.07 %, N2O-N -> N2O by 0.02 %); the report prints which one was used.
 
 References
 ----------

@@ -51,3 +51,13 @@ def test_unconvertible_units_are_refused():
 def test_tonnes_of_gas_per_unit():
     gas, factor = tonnes_of_gas_per_unit("kg CH4-C ha-1 yr-1", "integer_masses")
     assert gas == "CH4" and factor == pytest.approx(16 / 12 / 1000)
+
+
+@pytest.mark.parametrize("basis, gas, expected_pct", [
+    ("CH4-C", "CH4", 0.18), ("CO2-C", "CO2", 0.07), ("N2O-N", "N2O", 0.02)])
+def test_the_two_conventions_differ_as_the_module_says(basis, gas, expected_pct):
+    # The module docstring's figures: standard atomic weights (IUPAC 2021 abridged table; basis_ratio is held
+    # to molmass above) against the whole-number ratios printed in the IPCC equations; CH4 differs most.
+    standard = basis_ratio(basis, gas, "standard_atomic_weights")
+    integer = basis_ratio(basis, gas, "integer_masses")
+    assert abs(standard / integer - 1) * 100 == pytest.approx(expected_pct, abs=0.005)
