@@ -18,6 +18,7 @@ import pandas as pd
 
 from .factors import FactorLibrary
 from .matching import distinct_codes, most_specific
+from .schema import plain
 
 ALLOC_KEYS = ["pathway", "land_use", "subtype", "remaining_or_converted"]
 ALLOC_WEIGHTS = {"pathway": 8, "land_use": 4, "subtype": 2, "remaining_or_converted": 1}
@@ -79,7 +80,7 @@ def category_table(emissions: pd.DataFrame, library: FactorLibrary, years) -> pd
     ie = (moved.groupby(["land_category_code", "gas", "year"])["category_code"]
           .agg(lambda s: ", ".join(sorted(set(s)))).reset_index()
           .rename(columns={"land_category_code": "category_code", "category_code": "_ie_in"}))
-    frame = frame.merge(ie, on=["category_code", "gas", "year"], how="left")
+    frame = plain(frame.merge(ie, on=["category_code", "gas", "year"], how="left"))
     frame["notation_key"] = frame["notation_key"].fillna("")
     frame["notation_reason"] = frame["notation_reason"].fillna("")
     has_number = frame["emission_t"].notna()

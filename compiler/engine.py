@@ -16,7 +16,7 @@ from .factors import KEYS, QUANTITIES, FactorLibrary, apply_overrides, override_
 from .matching import distinct_codes, missing_distinctions
 from .readers import ROW
 from .row_model import ROW_MODELS
-from .schema import RESULT_COLUMNS, STRATUM_KEYS
+from .schema import RESULT_COLUMNS, STRATUM_KEYS, compact, plain
 from .settings import Settings
 from .units import basis_ratio, conversion_factor, tonnes_of_gas_per_unit
 
@@ -49,7 +49,7 @@ def _strata(rows: pd.DataFrame, library: FactorLibrary, settings: Settings, cach
         return entry[1], entry[2]
     match = _match_frame(rows, library, settings)
     codes, first = distinct_codes(match, KEYS)
-    distinct = match.iloc[first].reset_index(drop=True)
+    distinct = plain(match.iloc[first].reset_index(drop=True))
     if cache is not None:
         cache[id(rows)] = (rows, codes, distinct)
     return codes, distinct
@@ -65,14 +65,16 @@ def _resolve(rows: pd.DataFrame, quantity: str, library: FactorLibrary, settings
         raise RuntimeError(f"factor table ambiguity for {quantity}: {ambiguous['factor_id'].tolist()}")
     distinct["factor_id"] = distinct.index.map(dict(zip(best["_sid"], best["factor_id"])))
     # The stratum's factor on each row (a gather by stratum code, not a join on the key columns).
-    per_row = distinct["factor_id"].to_numpy(dtype=object)[codes] if len(codes) else np.array([], dtype=object)
+    distinct_ids = distinct["factor_id"].to_numpy(dtype=object)
+    per_row = distinct_ids[codes] if len(codes) else np.array([], dtype=object)
+    default = _coded(pd.Series(distinct_ids, dtype=object).fillna("").to_numpy(dtype=object), codes)
     # apply_overrides reads the stratum keys, region, year and the default factor_id of each row.
     needed = [c for c in rows.columns if c in KEYS or c in ("region", "year")]
     frame = pd.DataFrame({c: rows[c] for c in needed}, index=rows.index)
     frame["factor_id"] = per_row
     if "fire_type" not in frame:
         frame["fire_type"] = ""
-    return frame["factor_id"], apply_overrides(frame, overrides, quantity)
+    return pd.Series(default, index=rows.index), apply_overrides(frame, overrides, quantity)
 
 
 def _report_missing(rows: pd.DataFrame, missing: np.ndarray, quantity: str, library: FactorLibrary,
@@ -160,6 +162,7 @@ def compute(activity: pd.DataFrame, fires: pd.DataFrame, overrides: pd.DataFrame
     coverage = library.coverage[library.coverage["factor_set"] == settings.factor_set]
     pieces: list[pd.DataFrame] = []
     acts = activity[~activity["_bad"]].copy() if not activity.empty else activity
+    acts = _as_categories(acts, [*STRATUM_KEYS, "fire_type", "activity_source"])
     acts.attrs = activity.attrs
     convention = settings.mass_ratios
     cache: dict = {}  # distinct strata of each row set, shared by its pathways and quantities
@@ -174,32 +177,74 @@ def compute(activity: pd.DataFrame, fires: pd.DataFrame, overrides: pd.DataFrame
                                    cache=cache))
     if fires is not None and not fires.empty:
         good = fires[~fires["_bad"]].copy()
-        good.attrs = fires.attrs
         for col in ("nutrient_status", "drainage_depth", "subtype", "previous_land_use"):
-            good[col] = ""
+            good[col] = _constant("", len(good))
+        good = _as_categories(good, [*STRATUM_KEYS, "fire_type", "activity_source"])
+        good.attrs = fires.attrs
         for _, cov in coverage[coverage["soil_status"] == "fire"].iterrows():
             pieces.append(_pathway(good, cov, library, settings, overrides, lookup, register, log, convention,
                                    area_column="burned_ha", cache=cache))
     _flush_undistinguished(log)
     pieces = [p for p in pieces if not p.empty]
-    emissions = pd.concat(pieces, ignore_index=True) if pieces else pd.DataFrame(columns=RESULT_COLUMNS)
+    emissions = _concat(pieces) if pieces else pd.DataFrame(columns=RESULT_COLUMNS)
     return EngineResult(emissions=emissions[RESULT_COLUMNS], register=register)
+
+
+# --- the results table's text columns as categoricals (see compiler.schema.compact) ---------------------
+
+def _constant(value: str, n: int) -> pd.Categorical:
+    """One text repeated ``n`` times: a code per row into one category."""
+    return pd.Categorical.from_codes(np.zeros(n, dtype=np.int8), [value])
+
+
+def _coded(values: np.ndarray, codes: np.ndarray) -> pd.Categorical:
+    """``values`` (one per distinct id, may repeat) taken at ``codes``, as a categorical."""
+    value_codes, uniques = pd.factorize(np.asarray(values, dtype=object))
+    if len(codes) == 0:
+        return pd.Categorical.from_codes(np.zeros(0, dtype=np.int8), uniques)
+    return pd.Categorical.from_codes(value_codes[codes], uniques)
+
+
+def _as_categories(frame: pd.DataFrame, columns: list[str]) -> pd.DataFrame:
+    """``frame`` with its text columns among ``columns`` as categoricals (the engine gathers codes, not text)."""
+    text = {c: frame[c].astype("category") for c in columns
+            if c in frame and not isinstance(frame[c].dtype, pd.CategoricalDtype)
+            and (pd.api.types.is_string_dtype(frame[c].dtype) or frame[c].dtype == object)}
+    return frame.assign(**text) if text else frame
+
+
+def _concat(pieces: list[pd.DataFrame]) -> pd.DataFrame:
+    """The pathways' pieces as one table: categoricals united (sorted categories), numbers concatenated."""
+    from pandas.api.types import union_categoricals
+
+    columns = {}
+    for col in RESULT_COLUMNS:
+        parts = [p[col] for p in pieces]
+        if any(isinstance(part.dtype, pd.CategoricalDtype) or pd.api.types.is_string_dtype(part.dtype)
+               or part.dtype == object for part in parts):
+            cats = [part.astype("category").array for part in parts]
+            cats = [pd.Categorical.from_codes(c.codes, c.categories.astype("str")) for c in cats]  # one dtype
+            columns[col] = union_categoricals(cats, sort_categories=True)
+        else:
+            columns[col] = np.concatenate([part.to_numpy() for part in parts])
+    return compact(pd.DataFrame(columns))  # the columns compared with one another share their categories
 
 
 def _base_frame(rows: pd.DataFrame, cov: pd.Series, pathway: str, gas: str, area_column: str) -> pd.DataFrame:
     """The stratum, trace and blank result columns of one pathway, one row per row of ``rows``."""
-    columns = {c: rows[c] if c in rows else "" for c in STRATUM_KEYS}
-    columns["fire_type"] = rows["fire_type"] if "fire_type" in rows else ""
-    columns["pathway"], columns["gas"] = pathway, gas
+    n = len(rows)
+    columns = {c: rows[c] if c in rows else _constant("", n) for c in STRATUM_KEYS}
+    columns["fire_type"] = rows["fire_type"] if "fire_type" in rows else _constant("", n)
+    columns["pathway"], columns["gas"] = _constant(pathway, n), _constant(gas, n)
     columns["area_ha"] = rows[area_column].astype(float)
-    columns["input_file"] = rows.attrs.get("file", "")
+    columns["input_file"] = _constant(rows.attrs.get("file", ""), n)
     columns["input_row"] = rows[ROW].astype(int)
     columns["record_id"] = rows.index.to_numpy()
-    columns["activity_source"] = rows["activity_source"] if "activity_source" in rows else "reported"
-    columns["equation"] = cov["equation"]
+    columns["activity_source"] = rows["activity_source"] if "activity_source" in rows else _constant("reported", n)
+    columns["equation"] = _constant(cov["equation"], n)
     for col in ("factor_id", "default_factor_id", "factor_unit", "tier", "parameter_id", "parameter_unit", "emission_basis",
                 "notation_key", "notation_reason"):
-        columns[col] = ""
+        columns[col] = _constant("", n)
     for col in ("factor_value", "parameter_value", "emission_basis_t", "emission_t", "area_basis_ha", "conversion"):
         columns[col] = np.nan
     return pd.DataFrame(columns, index=rows.index)
@@ -218,7 +263,7 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
     gas, main_q, second_q = model.gas, model.factor_quantity, model.parameter_quantity
     if cov["status"] != "estimated":
         out = _base_frame(rows, cov, pathway, gas, area_column)
-        out["notation_key"], out["notation_reason"] = cov["status"], cov["reason"]
+        out["notation_key"], out["notation_reason"] = _constant(cov["status"], len(out)), _constant(cov["reason"], len(out))
         return out
 
     default_ids, ids = _resolve(rows, main_q, library, settings, overrides, cache)
@@ -244,14 +289,14 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
         if use_secondary:
             sec_ids = sec_ids[keep]
     out = _base_frame(rows, cov, pathway, gas, area_column)
-    out["default_factor_id"] = default_ids.fillna("")
+    out["default_factor_id"] = default_ids
     # Factor value, unit and tier of each row: looked up once per distinct id, then gathered by code.
     codes, uniques = pd.factorize(ids)
     info = lookup[["value", "unit", "tier"]].reindex(uniques)
-    out["factor_id"] = ids
+    out["factor_id"] = pd.Categorical.from_codes(codes, uniques)
     out["factor_value"] = info["value"].astype(float).to_numpy()[codes]
-    out["factor_unit"] = _gather(info["unit"], codes, out.index)
-    out["tier"] = _gather(info["tier"], codes, out.index)
+    out["factor_unit"] = _coded(info["unit"].to_numpy(dtype=object), codes)
+    out["tier"] = _coded(info["tier"].to_numpy(dtype=object), codes)
     area = out["area_ha"].to_numpy()
 
     if use_secondary:
@@ -264,7 +309,8 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
         if from_activity.any():
             sec_value[from_activity] = rows.loc[out.index[from_activity], "ditch_fraction"].to_numpy(dtype=float)
             sec_unit[from_activity] = "fraction"
-        out["parameter_id"], out["parameter_value"], out["parameter_unit"] = sec, sec_value, sec_unit
+        out["parameter_id"] = pd.Categorical.from_codes(sec_codes, sec_uniques)
+        out["parameter_value"], out["parameter_unit"] = sec_value, pd.Categorical(sec_unit)
         target = QUANTITIES[second_q][1]
         scale = _unit_scale(pd.Series(sec_unit, index=out.index), target, convention)
         second = sec_value * scale
@@ -279,7 +325,7 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
         basis_t = model.evaluate(area, second, gef)  # Eq. 2.8
         basis_species = species_unit.split()[1]
         out["area_basis_ha"] = area
-        out["emission_basis"] = f"t {basis_species}"
+        out["emission_basis"] = _constant(f"t {basis_species}", len(out))
         out["emission_basis_t"] = basis_t
         to_gas = basis_ratio(basis_species, gas, convention)
         out["emission_t"] = basis_t * to_gas
@@ -301,7 +347,7 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
                         dtype=float)[unit_codes]
     basis_name = "t " + pd.Series(np.array([u.split()[1] for u in unit_uniques], dtype=object))
     product = model.evaluate(area, second, values)
-    out["emission_basis"] = _gather(basis_name, unit_codes, out.index)
+    out["emission_basis"] = _coded(basis_name.to_numpy(dtype=object), unit_codes)
     out["emission_basis_t"] = product * to_basis
     out["emission_t"] = product * to_gas
     out["conversion"] = to_gas  # emission_t = area_basis_ha x factor_value x conversion

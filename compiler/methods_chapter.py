@@ -209,6 +209,7 @@ def _gap_fill_text(rows_c: pd.DataFrame) -> str:
     if filled.empty:
         return "The time series is consistent: the activity data cover every year and no gap was filled."
     counts = filled["activity_source"].value_counts().sort_index()
+    counts = counts[counts > 0]  # a categorical column counts its unused categories too
     used = _join(f"{n} {k}" for k, n in counts.items())
     return (f"{len(filled)} stratum-years were gap-filled with the techniques of 2006 IPCC Guidelines Vol. 1 Ch. 5 "
             f"({used}); the gap_filling sheet lists each with its basis.")

@@ -27,7 +27,7 @@ from .factors import FactorLibrary, file_sha256, load_library
 from .metrics import co2_equivalent, gwp_table
 from .settings import Settings, load_settings
 from .progress import stage
-from .schema import GAP_FILL_COLUMNS, SERIES_KEYS
+from .schema import compact, GAP_FILL_COLUMNS, SERIES_KEYS
 from .timeseries import fill_gaps
 from .units import conversion_factor
 
@@ -144,7 +144,8 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     emissions = allocate(emissions, library)
     names = {p: (Path(p).name if p else "") for p in emissions["input_file"].unique()}
     emissions["input_file"] = emissions["input_file"].map(names)  # once per distinct file, not per row
-    held = [emissions]
+    # Text columns as categoricals with sorted categories (small integer codes per row; see schema.compact).
+    held = [compact(emissions)]
     del emissions  # _sorted takes the table out of ``held``, so that each reordered column frees its original
     emissions = _sorted(held, ["year", "region", "category_code", "pathway", *SERIES_KEYS[1:], "fire_type",
                                "area_ha", "input_row"])

@@ -59,6 +59,7 @@ from .factors import QUANTITIES, unit_kind_ok
 from .offsite_peat import OFFSITE_PATHWAY
 from .readers import MAX_LISTED
 from .units import basis_ratio, parse_unit, tonnes_of_gas_per_unit
+from .schema import plain
 
 # 2006 IPCC Guidelines category 3.B Land, or sector 4 of the transparency framework's tables (allocation = "etf"):
 # "the land sector" of the insignificance rule
@@ -1116,7 +1117,7 @@ def check_ne_insignificance(result, thresholds: QaqcThresholds,
     not assessed. One finding per category, gas and outcome.
     """
     em = result.emissions
-    ne = em[(em["notation_key"] == "NE") & (em["area_ha"] > 0) & em["gas"].isin(list(result.gwp))].copy()
+    ne = plain(em[(em["notation_key"] == "NE") & (em["area_ha"] > 0) & em["gas"].isin(list(result.gwp))])
     if ne.empty:
         return []
     strata = ["pathway", "climate_zone", "soil_status", "fire_type"]

@@ -41,6 +41,7 @@ import pandas as pd
 from .errors import Finding, InputError
 from .offsite_peat import OFFSITE_PATHWAY
 from .schema import ROW_KEYS
+from .schema import plain
 
 MATCH_KEYS = ROW_KEYS  # rows of two exports are matched on every key of a result row (compiler.schema)
 PARTS = ["activity_change", "factor_change", "strata_added", "strata_removed", "allocation_change"]
@@ -200,7 +201,7 @@ def compare(previous: pd.DataFrame, current: pd.DataFrame,
             co2eq_t=("co2eq_t", lambda s: s.sum(min_count=1)), factor_id=("factor_id", "first"),
             **({"default_factor_id": ("default_factor_id", "first")} if extra else {}))
 
-    prev, cur = grouped(previous), grouped(current)
+    prev, cur = plain(grouped(previous)), plain(grouped(current))  # the current side's keys are categoricals
     rows = prev.merge(cur, on=MATCH_KEYS, how="outer", suffixes=("_0", "_1"), indicator=True)
     both = rows["_merge"] == "both"
     e0 = rows["co2eq_t_0"].fillna(0.0).to_numpy()

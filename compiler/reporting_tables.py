@@ -36,6 +36,7 @@ import pandas as pd
 
 from .matching import distinct_codes
 from .units import basis_ratio
+from .schema import plain
 
 # pathway -> (mass basis of the implied factor, multiplier from t to the unit's mass, unit)
 IEF_BASIS = {
@@ -155,7 +156,7 @@ def organic_soils_table(emissions: pd.DataFrame, categories: pd.DataFrame, mass_
     pathway = rows["pathway"].to_numpy(dtype=object)
     estimate = (rows["notation_key"] == "").to_numpy(dtype=bool)
     emission_t = rows["emission_t"].to_numpy(dtype=float)
-    groups = rows[RAW_KEYS].iloc[first].reset_index(drop=True)
+    groups = plain(rows[RAW_KEYS].iloc[first].reset_index(drop=True))
 
     def total(weights: np.ndarray, mask: np.ndarray) -> np.ndarray:
         return np.bincount(codes[mask], weights=weights[mask], minlength=n)

@@ -78,6 +78,7 @@ from . import climate_response as cr
 from .activity import load_overrides
 from .engine import compute
 from .errors import Finding, FindingLog, InputError
+from .schema import plain
 from .metrics import co2_equivalent
 from .readers import check_size, printable
 from .settings import Settings, parse_toml
@@ -915,7 +916,7 @@ def _emissions_detail(result, scenarios, areas: pd.DataFrame, horizon: int, file
     engine = compute(engine_in, None, overrides, result.library, settings, log)
     if log.errors:
         raise InputError(_remap_findings(log.errors, frame, scenarios, result))
-    detail = engine.emissions.copy()
+    detail = plain(engine.emissions)  # text columns: the measures below write new texts into them
     meta = frame.iloc[detail["input_row"].to_numpy() - 1]
     for col in ("scenario", "origin", "measure", "initial_ch4", "source_row"):
         detail[col] = meta[col].to_numpy()

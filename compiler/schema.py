@@ -102,6 +102,61 @@ FINDING_COLUMNS = ["severity", "check", "file", "sheet", "row", "column", "messa
                    "category_code", "gas", "years"]
 
 
+# Text columns of the results table that are compared with one another: each group shares one set of
+# categories, so that the comparison is of codes.
+SHARED_CATEGORIES = [("category_code", "land_category_code"), ("factor_id", "default_factor_id", "parameter_id")]
+
+
+def compact(frame):
+    """``frame`` with every text column as a pandas categorical with sorted text categories (so that codes
+    sort as the text sorts); the columns of each :data:`SHARED_CATEGORIES` group share one category set.
+
+    The results table repeats a few dozen distinct texts per column over millions of rows; as categoricals
+    each cell is a small integer code into the column's categories. Columns that are categorical already
+    are recoded (cheap), not rebuilt from text.
+    """
+    import pandas as pd
+
+    def as_category(col):
+        column = frame[col]
+        if not isinstance(column.dtype, pd.CategoricalDtype):
+            column = column.astype("category")
+        if column.cat.categories.dtype != "str":
+            column = column.cat.rename_categories(column.cat.categories.astype("str"))
+        return column
+
+    def is_text(col):
+        dtype = frame[col].dtype
+        return isinstance(dtype, pd.CategoricalDtype) or pd.api.types.is_string_dtype(dtype) or pd.api.types.is_object_dtype(dtype)
+
+    out = {}
+    for group in SHARED_CATEGORIES:
+        present = [c for c in group if c in frame and is_text(c)]
+        for c in present:
+            out[c] = as_category(c)
+        if present:
+            union = pd.Index(sorted(set().union(*(out[c].cat.categories for c in present))), dtype="str")
+            for c in present:
+                out[c] = out[c].cat.set_categories(union)
+    for col in frame.columns:
+        if col not in out and is_text(col):
+            column = as_category(col)
+            if not column.cat.categories.is_monotonic_increasing:
+                column = column.cat.reorder_categories(sorted(column.cat.categories))
+            out[col] = column
+    return frame.assign(**out) if out else frame
+
+
+def plain(frame):
+    """``frame`` with its categorical columns as text again: for the small tables derived from the results
+    table (a group-by or merge on its categorical columns keeps them categorical)."""
+    import pandas as pd
+
+    cats = {c: frame[c].astype(frame[c].cat.categories.dtype) for c in frame.columns
+            if isinstance(frame[c].dtype, pd.CategoricalDtype)}
+    return frame.assign(**cats) if cats else frame
+
+
 def table_schema(columns: list[str]) -> list[dict]:
     """Frictionless Table Schema fields of ``columns`` (type, description with unit, unit)."""
     fields = []

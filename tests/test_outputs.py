@@ -10,7 +10,7 @@ from hypothesis import given, settings, strategies as st
 from frictionless import validate  # reference implementation of the Table Schema standard
 
 from compiler import compile_inventory
-from compiler.schema import EXPORT_COLUMNS
+from compiler.schema import EXPORT_COLUMNS, plain
 
 
 def sha(path):
@@ -150,7 +150,7 @@ def test_user_text_is_never_a_formula(tmp_path, demo_result):
     # Input text that starts like a formula is refused when read (tests/test_formula_text.py); the workbook
     # writer still writes any text as a text cell, whatever it starts with.
     out = tmp_path / "out"
-    emissions = demo_result.emissions.copy()
+    emissions = plain(demo_result.emissions)  # text columns to assign to (README: results for Python users)
     emissions.loc[emissions["region"] == "Quillfen", "region"] = "=HYPERLINK(\"http://example.invalid\")"
     import dataclasses
 

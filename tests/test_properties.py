@@ -251,7 +251,7 @@ def test_row_order_linearity_area_balance_and_co2eq(rows, order, factor):
     # CO2-eq = tonnes of gas x GWP100, row by row and per year.
     gwp = base.gwp
     rated = em[em["notation_key"] == ""]
-    np.testing.assert_allclose(rated["co2eq_t"], rated["emission_t"] * rated["gas"].map(gwp), rtol=1e-12)
+    np.testing.assert_allclose(rated["co2eq_t"], rated["emission_t"] * rated["gas"].astype(str).map(gwp), rtol=1e-12)
     by_gas = rated.groupby(["year", "gas"])["emission_t"].sum().unstack("gas")
     expected = sum(by_gas[gas].fillna(0.0) * gwp[gas] for gas in by_gas.columns)
     cats = base.categories[base.categories["notation_key"] == ""]

@@ -168,7 +168,7 @@ def write_workbook(result, path: Path) -> None:
         "area_basis_ha": est["area_basis_ha"], "factor_id": est["factor_id"], "factor_value": est["factor_value"],
         "factor_unit": est["factor_unit"], "conversion": est["conversion"], "emission_t": est["emission_t"],
         "strata_sheet_row": strata_row[est.index] if parts == 1 else np.nan,
-        "factors_sheet_row": est["factor_id"].map(factor_rows),
+        "factors_sheet_row": est["factor_id"].astype("str").map(factor_rows),  # the ids as text: map gives numbers
     }).sort_values(["year", "category_code", "gas", "region", "pathway"])
     tcols = list(trace.columns)
     tfmt = {"cell_total_t": FORMATS["t"], "emission_t": FORMATS["t"], "area_basis_ha": FORMATS["ha"],
