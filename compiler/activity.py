@@ -236,6 +236,7 @@ class _Distinct:
     """
 
     def __init__(self, text: pd.Series):
+        self.text = text
         self.codes, uniques = pd.factorize(text, use_na_sentinel=False)
         self.values = pd.Series(uniques, dtype=text.dtype)
 
@@ -243,6 +244,8 @@ class _Distinct:
         return mask.to_numpy(dtype=bool)[self.codes]
 
     def spread(self, values: pd.Series, index: pd.Index) -> pd.Series:
+        if values.dtype == self.values.dtype and values.equals(self.values):
+            return self.text.set_axis(index)  # every text kept as given (the usual case): the column itself
         return values.take(self.codes).set_axis(index)
 
 

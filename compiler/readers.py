@@ -114,7 +114,7 @@ def _decode(data: bytes, fname: str) -> str:
 def read_shipped_csv(path: Path, columnar: bool = False) -> tuple[pd.DataFrame, list[Finding]]:
     fname = str(path)
     data = path.read_bytes()
-    if not data.strip():
+    if not data or data.isspace():  # nothing but ASCII white space (as data.strip() would say, without a copy)
         raise _error("the file is empty", fname, expected="a header row and at least one data row")
     if data[:4] == ZIP_MAGIC:
         raise _error("this is a workbook (zip) file with a .csv name", fname, expected="a CSV text file, or rename it .xlsx")
