@@ -181,8 +181,8 @@ def _columnar_frame(data: bytes, delimiter: str) -> pd.DataFrame | None:
                                               ignore_empty_lines=False),
             convert_options=pa_csv.ConvertOptions(column_types={n: pa.string() for n in names}, null_values=[],
                                                   strings_can_be_null=False, quoted_strings_can_be_null=False))
-    except (pa.ArrowInvalid, ValueError):  # rows of different widths, among others
-        return None
+    except (pa.ArrowException, ValueError, OSError):  # rows of different widths, among others: the row-by-row
+        return None                                     # reader then says what is wrong, as it always did
     if table.num_rows < 2:
         return None
     limit = csv.field_size_limit()
