@@ -228,6 +228,27 @@ def _check_characters(raw: pd.DataFrame, stripped: pd.Series, unflagged: pd.Seri
     return bad
 
 
+class _Distinct:
+    """The distinct texts of a column (``values``, in order of first appearance) and each row's code.
+
+    A check made on ``values`` gives the rows' answers by :meth:`rows` (a mask) or :meth:`spread` (a
+    series): the same as making it on every cell, once per distinct text.
+    """
+
+    def __init__(self, text: pd.Series):
+        self.text = text
+        self.codes, uniques = pd.factorize(text, use_na_sentinel=False)
+        self.values = pd.Series(uniques, dtype=text.dtype)
+
+    def rows(self, mask: pd.Series) -> np.ndarray:
+        return mask.to_numpy(dtype=bool)[self.codes]
+
+    def spread(self, values: pd.Series, index: pd.Index) -> pd.Series:
+        if values.dtype == self.values.dtype and values.equals(self.values):
+            return self.text.set_axis(index)  # every text kept as given (the usual case): the column itself
+        return values.take(self.codes).set_axis(index)
+
+
 def _parse_numbers(text: pd.Series, decimal_comma: bool) -> pd.Series:
     cleaned = text.astype(str).str.strip()
     if decimal_comma:
@@ -284,13 +305,17 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: CellChecker, 
                   column=", ".join(shorten(printable(c), 40) for c in extra[:MAX_LISTED])
                   + (f" and {len(extra) - MAX_LISTED:,} more" if len(extra) > MAX_LISTED else ""))
     out = pd.DataFrame({ROW: raw[ROW].to_numpy()}, index=raw.index)
+    located = raw[[ROW]]  # the rows a finding names: only their numbers are read
     bad_rows = np.zeros(len(raw), dtype=bool)
     for col in spec:
         if col.name not in raw.columns:
             out[col.name] = col.default if col.kind in ("text", "term") else np.nan
             continue
         text = raw[col.name].astype(str)
-        stripped = text.str.strip()
+        # Every check of a cell depends on its text alone: each is made once per distinct text of the
+        # column and spread to the rows by their codes (a column of 1e6 cells holds a few thousand texts).
+        cells = _Distinct(text)
+        stripped = cells.values.str.strip()
         blank = stripped == ""
         if col.kind == "term":
             values, unknown = normalise_column(stripped.where(~blank, col.default), col.term)
@@ -299,42 +324,45 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: CellChecker, 
             if unknown:
                 bad = values.isin(list(unknown))
                 for value, near in unknown.items():
-                    rows = raw[(values == value) & bad]
+                    rows = located[cells.rows((values == value) & bad)]
                     expected = describe_accepted(col.term) + (f" (closest: {near})" if near else "")
                     # Terms are ASCII: a look-alike or invisible character is named by its code point.
                     odd = non_ascii_characters(value.strip())
                     found = text if not odd else pd.Series(f"{shorten(value.strip())} ({odd})", index=rows.index)
                     check.rows("error", "vocabulary", f"unknown {col.name}", rows, col.name, found, expected,
                                cut=not odd)
-                bad_rows |= bad.to_numpy()
+                bad_rows |= cells.rows(bad)
             if col.required and "" not in TERMS[col.term]:
-                empty = raw[values == ""]
-                check.rows("error", "missing", f"{col.name} is blank", empty, col.name, text,
+                empty = cells.rows(values == "")
+                check.rows("error", "missing", f"{col.name} is blank", located[empty], col.name, text,
                            describe_accepted(col.term))
-                bad_rows |= (values == "").to_numpy()
-            out[col.name] = values
+                bad_rows |= empty
+            out[col.name] = cells.spread(values, raw.index)
         elif col.kind == "text":
             # One spelling per name: a region typed with a composed or a decomposed accent is one region.
             stripped = stripped.str.normalize("NFC")
             if col.required:
-                check.rows("error", "missing", f"{col.name} is blank", raw[blank], col.name, text, "a value")
-                bad_rows |= blank.to_numpy()
-            long = stripped.str.len() > col.max_length
-            check.rows("error", "text", f"{col.name} is longer than {col.max_length} characters", raw[long],
+                check.rows("error", "missing", f"{col.name} is blank", located[cells.rows(blank)], col.name, text,
+                           "a value")
+                bad_rows |= cells.rows(blank)
+            long = cells.rows(stripped.str.len() > col.max_length)
+            check.rows("error", "text", f"{col.name} is longer than {col.max_length} characters", located[long],
                        col.name, text, f"at most {col.max_length} characters")
-            bad_rows |= long.to_numpy()
-            control = stripped.str.contains(MULTILINE_CONTROL if col.multiline else LINE_CONTROL, regex=True)
-            check.rows("error", "text", f"{col.name} holds control characters", raw[control], col.name, text,
+            bad_rows |= long
+            control = cells.rows(stripped.str.contains(MULTILINE_CONTROL if col.multiline else LINE_CONTROL,
+                                                       regex=True))
+            check.rows("error", "text", f"{col.name} holds control characters", located[control], col.name, text,
                        "printable text" + ("" if col.multiline else " on one line"))
-            bad_rows |= control.to_numpy()
+            bad_rows |= control
             # A cell that starts like a formula would be run by a spreadsheet program that opens a CSV we write.
-            formula = stripped.str.match(FORMULA_START)
+            formula = cells.rows(stripped.str.match(FORMULA_START))
             check.rows("error", "text", f"{col.name} starts with {FORMULA_TEXT}, which a spreadsheet program runs "
-                       "as a formula when it opens a CSV file", raw[formula], col.name, text,
+                       "as a formula when it opens a CSV file", located[formula], col.name, text,
                        "text that starts with a letter, a digit or a bracket (reword, or drop the first character)")
-            bad_rows |= formula.to_numpy()
-            bad_rows |= _check_characters(raw, stripped, ~control, col, check)
-            out[col.name] = stripped.where(~blank, col.default)
+            bad_rows |= formula
+            bad_rows |= _check_characters(located, cells.spread(stripped, raw.index), pd.Series(~control, raw.index),
+                                          col, check)
+            out[col.name] = cells.spread(stripped.where(~blank, col.default), raw.index)
         else:
             numbers = _parse_numbers(stripped, decimal_comma)
             if decimal_comma:
@@ -342,27 +370,30 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: CellChecker, 
                 grouped = stripped.str.fullmatch(r"[+-]?\d{1,3}(\.\d{3})+")
                 numbers = numbers.where(~grouped)
             not_number = ~blank & numbers.isna()
-            marker = not_number & stripped.str.lower().isin(MISSING_MARKERS)
+            marker = cells.rows(not_number & stripped.str.lower().isin(MISSING_MARKERS))
+            not_number = cells.rows(not_number)
+            blank = cells.rows(blank)
+            numbers = cells.spread(numbers, raw.index)
             if col.kind == "year":
                 expected = "a whole year such as 2020"
             else:
                 expected = _number_expected(decimal_comma)
-            check.rows("error", "number", f"{col.name} is not a number", raw[not_number & ~marker], col.name, text,
-                       expected)
-            check.rows("error", "number", f"{col.name} is not a number", raw[marker], col.name, text,
+            check.rows("error", "number", f"{col.name} is not a number", located[not_number & ~marker], col.name,
+                       text, expected)
+            check.rows("error", "number", f"{col.name} is not a number", located[marker], col.name, text,
                        "a number; a missing-value marker such as NaN or NA is not accepted (leave an optional cell "
                        "blank; a required one needs its value)")
-            bad_rows |= not_number.to_numpy()
+            bad_rows |= not_number
             if col.required:
-                check.rows("error", "missing", f"{col.name} is blank", raw[blank], col.name, text, "a number")
-                bad_rows |= blank.to_numpy()
+                check.rows("error", "missing", f"{col.name} is blank", located[blank], col.name, text, "a number")
+                bad_rows |= blank
             infinite = pd.Series(~np.isfinite(numbers.to_numpy(dtype=float)), index=numbers.index) & numbers.notna()
-            check.rows("error", "number", f"{col.name} is not finite", raw[infinite], col.name, text, "a finite number")
+            check.rows("error", "number", f"{col.name} is not finite", located[infinite], col.name, text, "a finite number")
             bad_rows |= infinite.to_numpy()
             numbers = numbers.where(~infinite)
             if col.kind == "year":
                 fractional = numbers.notna() & (numbers != np.floor(numbers.fillna(0)))
-                check.rows("error", "year", f"{col.name} is not a whole year", raw[fractional], col.name, text,
+                check.rows("error", "year", f"{col.name} is not a whole year", located[fractional], col.name, text,
                            "a whole year such as 2020")
                 bad_rows |= fractional.to_numpy()
                 first, last = YEAR_RANGE
@@ -373,27 +404,27 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: CellChecker, 
                 out_of_range = numbers.notna() & ~fractional & ((numbers < first) | (numbers > last))
                 label = "year outside the inventory years" if where.startswith("settings") else \
                     f"{col.name} outside {YEAR_RANGE[0]} to {YEAR_RANGE[1]}"
-                check.rows("error", "year", label, raw[out_of_range], col.name, text, f"{first} to {last} ({where})")
+                check.rows("error", "year", label, located[out_of_range], col.name, text, f"{first} to {last} ({where})")
                 bad_rows |= out_of_range.to_numpy()
                 numbers = numbers.where(~(fractional | out_of_range))  # typed as whole years downstream
             else:
                 if col.kind == "number":
                     negative = numbers < 0
-                    check.rows("error", "number", f"{col.name} is negative", raw[negative], col.name, text, ">= 0")
+                    check.rows("error", "number", f"{col.name} is negative", located[negative], col.name, text, ">= 0")
                     bad_rows |= negative.to_numpy()
                 elif col.kind == "fraction":
                     outside = (numbers < 0) | (numbers > 1)
-                    check.rows("error", "fraction", f"{col.name} is outside [0, 1]", raw[outside], col.name, text,
+                    check.rows("error", "fraction", f"{col.name} is outside [0, 1]", located[outside], col.name, text,
                                "a fraction from 0 to 1")
                     bad_rows |= outside.to_numpy()
                 elif col.kind == "percent":
                     outside = (numbers < 0) | (numbers > 1000)
-                    check.rows("error", "number", f"{col.name} is outside 0 to 1000 %", raw[outside], col.name, text,
+                    check.rows("error", "number", f"{col.name} is outside 0 to 1000 %", located[outside], col.name, text,
                                "a 95 % half-width in percent")
                     bad_rows |= outside.to_numpy()
                 huge = numbers.abs() > col.maximum
                 check.rows("error", "number", f"{col.name} is above {_short_number(col.maximum)}"
-                           + (" ha" if col.name in AREA_COLUMNS else " in magnitude"), raw[huge], col.name, text,
+                           + (" ha" if col.name in AREA_COLUMNS else " in magnitude"), located[huge], col.name, text,
                            f"at most {col.maximum:,.0f}" + (AREA_BOUND_NOTE if col.name in AREA_COLUMNS else ""))
                 bad_rows |= huge.to_numpy()
             out[col.name] = numbers
@@ -402,7 +433,7 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: CellChecker, 
 
 
 def _load(path: Path, sheet: str, spec: list[Column], log: FindingLog, settings: Settings) -> tuple[pd.DataFrame, str]:
-    raw, sheet_name, notes = read_table(path, sheet, settings.max_input_mb)
+    raw, sheet_name, notes = read_table(path, sheet, settings.max_input_mb, columnar=True)
     log.extend(notes)
     decimal_comma = any(n.check == "read" and n.found == ";" for n in notes)  # the reader's delimiter note
     check = CellChecker(log, str(path), sheet_name)

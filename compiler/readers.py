@@ -49,6 +49,7 @@ _DTD_MARKS = tuple(m.encode(enc).lower() for m in ("<!DOCTYPE", "<!ENTITY")
 _FORMULA_TAG = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?f[\s>/]")
 _MERGE_REF = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?mergeCell\b[^>]*\bref=\"([A-Za-z]+\d+(?::[A-Za-z]+\d+)?)\"")
 _CELL_REF = re.compile(r"([A-Za-z]+)(\d+)")
+_FIRST_LINE = re.compile("[^\n\r\x0b\x0c\x1c\x1d\x1e\x85\u2028\u2029]*")  # str.splitlines' line ends
 
 
 def printable(text) -> str:
@@ -72,13 +73,20 @@ def check_size(path: Path, max_mb: float) -> None:
                      "(settings [limits] max_input_mb); it was not read", str(path))
 
 
-def read_table(path: Path, sheet: str = "", max_mb: float = 512) -> tuple[pd.DataFrame, str, list[Finding]]:
-    """Read ``path`` as text cells. Returns ``(frame, sheet_name, notes)``."""
+def read_table(path: Path, sheet: str = "", max_mb: float = 512,
+               columnar: bool = False) -> tuple[pd.DataFrame, str, list[Finding]]:
+    """Read ``path`` as text cells. Returns ``(frame, sheet_name, notes)``.
+
+    ``columnar``: a CSV file that the columnar reader can take as it is (see :func:`_columnar_frame`)
+    comes back with ``str`` columns instead of ``object`` ones; the cells, column names, row numbers,
+    notes and errors are the same as without it. Callers that convert every column with
+    ``astype(str)`` (:func:`compiler.activity.validate_columns`) ask for it.
+    """
     path = Path(path)
     check_size(path, max_mb)
     suffix = path.suffix.lower()
     if suffix in (".csv", ".txt", ".tsv"):
-        frame, notes = read_shipped_csv(path)
+        frame, notes = read_shipped_csv(path, columnar)
         return frame, "", notes
     if suffix in (".xlsx", ".xlsm"):
         return _read_xlsx(path, sheet, max_mb)
@@ -103,10 +111,10 @@ def _decode(data: bytes, fname: str) -> str:
                      "probably Latin-1 or Windows-1252, an older 'CSV' export)", fname, expected=UTF8_EXPORT) from None
 
 
-def read_shipped_csv(path: Path) -> tuple[pd.DataFrame, list[Finding]]:
+def read_shipped_csv(path: Path, columnar: bool = False) -> tuple[pd.DataFrame, list[Finding]]:
     fname = str(path)
     data = path.read_bytes()
-    if not data.strip():
+    if not data or data.isspace():  # nothing but ASCII white space (as data.strip() would say, without a copy)
         raise _error("the file is empty", fname, expected="a header row and at least one data row")
     if data[:4] == ZIP_MAGIC:
         raise _error("this is a workbook (zip) file with a .csv name", fname, expected="a CSV text file, or rename it .xlsx")
@@ -115,7 +123,7 @@ def read_shipped_csv(path: Path) -> tuple[pd.DataFrame, list[Finding]]:
                      expected="a CSV text file: " + UTF8_EXPORT)
     text = _decode(data, fname)
     notes: list[Finding] = []
-    first = text.splitlines()[0] if text.splitlines() else ""
+    first = _FIRST_LINE.match(text).group()  # text.splitlines()[0] (or ""), without splitting the whole file
     delimiter = ","
     if path.suffix.lower() == ".tsv" or ("\t" in first and "," not in first):
         delimiter = "\t"
@@ -124,12 +132,77 @@ def read_shipped_csv(path: Path) -> tuple[pd.DataFrame, list[Finding]]:
         notes.append(Finding("info", "read", "semicolon-separated file: read with ';' between columns and ',' "
                              "accepted as decimal mark in number columns", file=fname, column="(column separator)",
                              found=";"))
+    if columnar:
+        frame = _columnar_frame(data, delimiter)
+        if frame is not None:
+            return frame, notes
     try:
         reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
         rows = list(reader)
     except csv.Error as exc:
         raise _error(f"not a readable CSV file: {exc}", fname) from None
     return _frame_from_rows(rows, fname, ""), notes
+
+
+def _columnar_frame(data: bytes, delimiter: str) -> pd.DataFrame | None:
+    """The frame :func:`_frame_from_rows` makes of ``csv.reader``'s rows, parsed by pyarrow's CSV reader
+    with ``str`` columns; None when this file needs the row-by-row reader.
+
+    Called with UTF-8 text already checked by :func:`_decode`. Taken only where the two readers agree
+    cell for cell: no quote character in the file (so no quoted field, no delimiter or line break
+    inside a cell, none of ``csv.reader``'s strict-mode errors), no NUL byte, the same number of cells
+    in every row (pyarrow refuses a row with more or fewer, and the row-by-row reader pads short rows
+    and names a long one), a header whose names are all given, distinct and not ``_row``, no cell
+    above ``csv.field_size_limit()`` characters, and at least one data row after the blank rows at
+    the end are dropped. Both split lines at ``\n``, ``\r`` and ``\r\n`` only, and an empty line is
+    a row of blank cells in both. Without pyarrow installed every file takes the row-by-row reader.
+    """
+    if b'"' in data or b"\x00" in data:
+        return None
+    try:
+        import pyarrow as pa
+        import pyarrow.compute as pc
+        import pyarrow.csv as pa_csv
+    except ImportError:
+        return None
+    bom = len(UTF8_BOM) if data.startswith(UTF8_BOM) else 0
+    end = data.find(b"\n")
+    head = data[bom:end if end >= 0 else len(data)].split(b"\r")[0]
+    width = head.count(delimiter.encode("ascii")) + 1
+    if width > MAX_COLUMNS:
+        return None
+    names = [f"c{i}" for i in range(width)]
+    try:
+        table = pa_csv.read_csv(
+            pa.py_buffer(data)[bom:],
+            read_options=pa_csv.ReadOptions(column_names=names, block_size=16 * MIB),
+            parse_options=pa_csv.ParseOptions(delimiter=delimiter, quote_char=False, double_quote=False,
+                                              escape_char=False, newlines_in_values=False,
+                                              ignore_empty_lines=False),
+            convert_options=pa_csv.ConvertOptions(column_types={n: pa.string() for n in names}, null_values=[],
+                                                  strings_can_be_null=False, quoted_strings_can_be_null=False))
+    except (pa.ArrowException, ValueError, OSError):  # rows of different widths, among others: the row-by-row
+        return None                                     # reader then says what is wrong, as it always did
+    if table.num_rows < 2:
+        return None
+    limit = csv.field_size_limit()
+    if any((pc.max(pc.utf8_length(column)).as_py() or 0) > limit for column in table.columns):
+        return None
+    header = [table.column(i)[0].as_py() for i in range(width)]
+    if not header[-1].strip() or any(not h.strip() for h in header) or len(set(header)) < width:
+        return None
+    if ROW in (h.strip().lower() for h in header):
+        return None
+    rows = table.num_rows
+    while rows > 1 and not any(table.column(i)[rows - 1].as_py().strip() for i in range(width)):
+        rows -= 1  # blank rows at the end, as _frame_from_rows drops them
+    if rows < 2:
+        return None
+    body = table.slice(1, rows - 1)
+    frame = pd.DataFrame({n: body.column(n).to_pandas() for n in names})
+    frame.columns = pd.Index(header)
+    frame[ROW] = range(2, rows + 1)
+    return frame
 
 
 def _cell_text(value) -> str:
