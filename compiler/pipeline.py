@@ -153,7 +153,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     _check_area_balance(activity, emissions, log)
     recalculation = None
     if previous is not None:
-        from .recalculations import FACTOR_PARTS, compare, trend_effect
+        from .recalculations import FACTOR_PARTS, category_totals, compare, trend_effect, year_totals
 
         current = emissions[emissions["notation_key"] == ""]
         by_cell, by_row = compare(previous, current,
@@ -161,6 +161,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
         parts = [c for c in FACTOR_PARTS if c in by_cell]
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
                          "factor_parts_t": by_cell[parts].sum().to_dict(),  # all cells and common years [t CO2-eq]
+                         "by_year": year_totals(by_cell), "by_category": category_totals(by_cell),
                          **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
     used_ids = set(emissions["factor_id"].unique()) | set(emissions["parameter_id"].unique())
     factors_used = register[register["factor_id"].isin(used_ids)].copy()

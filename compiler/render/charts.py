@@ -198,7 +198,7 @@ def all_charts(result) -> dict[str, str]:
         "gas": contribution_by_gas(result.emissions),
     }
     if result.recalculation is not None:
-        out["recalculation"] = recalculation_series(result.recalculation["by_cell"])
+        out["recalculation"] = recalculation_series(result.recalculation["by_year"])
     unc = result.uncertainty
     if unc is not None and unc.monte_carlo is not None:
         cells = unc.monte_carlo.summary[unc.monte_carlo.summary["category_code"] != "total"]
@@ -211,8 +211,9 @@ def all_charts(result) -> dict[str, str]:
     return out
 
 
-def recalculation_series(by_cell: pd.DataFrame) -> str:
-    tot = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum() / 1000
+def recalculation_series(by_year: pd.DataFrame) -> str:
+    """The previous and the current net total per year (:func:`compiler.recalculations.year_totals`)."""
+    tot = by_year / 1000
     fig, ax = plt.subplots(figsize=(6.2, 2.4))
     ax.plot(tot.index, tot["previous_co2eq_t"], color="#9b6b43", linestyle="--", linewidth=1.4, label="previous submission")
     ax.plot(tot.index, tot["current_co2eq_t"], color="#2f4858", linewidth=1.6, label="this submission",
