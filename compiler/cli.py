@@ -141,10 +141,8 @@ def _compile(settings: Path, out: Path, quiet: bool, report: bool, archive: bool
         raise InputError("--archive needs the report: drop --no-report")
     with Progress(quiet) as progress:
         result = compile_inventory(settings, progress=progress, **overrides)
-        result._progress = progress
         progress.stage("writing the CSV tables")
-        folder = result.write(out, report=report, archive=archive)
-        result._progress = None
+        folder = result.write(out, report=report, archive=archive, progress=progress)
     if not quiet:
         _print_summary(result, folder)
     return EXIT_OK

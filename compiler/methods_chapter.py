@@ -27,7 +27,6 @@ import numpy as np
 import pandas as pd
 
 from .allocation_schemes import SCHEME_NAMES
-from .reporting_tables import reporting_tables
 from .factors import unchecked_factors
 
 SECTIONS = ("Description", "Methodological issues", "Uncertainty and time-series consistency",
@@ -74,18 +73,10 @@ def reported_categories(result) -> list[str]:
 
 
 def chapter(result) -> list[Block]:
-    """The chapter's blocks, made once per results table and kept on the result."""
-    cached = getattr(result, "_methods_chapter", None)
-    if cached is not None and cached[0] is result.emissions:
-        return cached[1]
-    blocks = _chapter(result)
-    result._methods_chapter = (result.emissions, blocks)
-    return blocks
-
-
-def _chapter(result) -> list[Block]:
+    """The chapter's blocks (made once by :func:`compiler.compile_inventory`, which keeps them as
+    ``result.methods_chapter``; the renderings read that field)."""
     s = result.settings
-    tables = reporting_tables(result)
+    tables = result.reporting_tables
     base, latest = tables.base_year, tables.latest_year
     blocks = [Block("h1", f"Methods: organic soils - {s.name}")]
     scheme = SCHEME_NAMES.get(s.allocation, s.allocation)
@@ -345,7 +336,7 @@ def _fixed_zip(data: bytes, stamp: _dt.datetime, path: Path) -> None:
 
 def write_chapter(result, folder: Path) -> list[Block]:
     """methods_chapter.md and methods_chapter.docx in ``folder``; returns the blocks."""
-    blocks = chapter(result)
+    blocks = result.methods_chapter
     (folder / "methods_chapter.md").write_text(to_markdown(blocks), encoding="utf-8")
     write_docx(blocks, folder / "methods_chapter.docx", result.compile_date)
     return blocks

@@ -53,6 +53,21 @@ class InventoryResult:
     review_log: pd.DataFrame = field(default_factory=pd.DataFrame)
     aggregates: Aggregates | None = None  # every total and cross-table an output shows (compiler.aggregate)
     peat_production: pd.DataFrame = field(default_factory=pd.DataFrame)  # validated [inputs] peat_production
+    # the submission aggregates (compiler.reporting_tables) and the methods chapter's blocks
+    # (compiler.methods_chapter), made once by compile_inventory after the analyses
+    reporting_tables: object = field(default=None, repr=False)
+    methods_chapter: list | None = field(default=None, repr=False)
+    _frozen: bool = field(default=False, init=False, repr=False, compare=False)
+
+    def __setattr__(self, name: str, value) -> None:
+        if getattr(self, "_frozen", False):
+            raise AttributeError(f"a compiled result is read-only (cannot set {name!r}); make a changed copy with "
+                                 "dataclasses.replace(result, ...)")
+        object.__setattr__(self, name, value)
+
+    def _freeze(self) -> None:
+        """End of :func:`compile_inventory`: from here on no attribute may be assigned."""
+        object.__setattr__(self, "_frozen", True)
 
     @property
     def totals(self) -> pd.DataFrame:
@@ -180,7 +195,19 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
                              peat_production=peat_production)
     if analyses:
         _analyse(result, progress, national)
+    _report_tables(result)
+    result._freeze()
     return result
+
+
+def _report_tables(result: InventoryResult) -> None:
+    """The submission aggregates and the methods chapter, once, from the analysed result (the chapter reads the
+    uncertainty, key categories and findings; the organic-soils table the QA/QC findings)."""
+    from .methods_chapter import chapter
+    from .reporting_tables import reporting_tables
+
+    result.reporting_tables = reporting_tables(result)
+    result.methods_chapter = chapter(result)
 
 
 def _load_other_inputs(settings: Settings, log: FindingLog) -> tuple[pd.DataFrame | None, pd.DataFrame | None]:

@@ -93,10 +93,8 @@ class ReportingTables:
 
 
 def reporting_tables(result) -> ReportingTables:
-    """The reporting tables of ``result``, made once per results table and kept on the result."""
-    cached = getattr(result, "_reporting_tables", None)
-    if cached is not None and cached[0] is result.emissions and cached[1] is result.categories:
-        return cached[2]
+    """The reporting tables of ``result`` (made once by :func:`compiler.compile_inventory`, which keeps them as
+    ``result.reporting_tables``; renderers read that field)."""
     years = list(result.settings.years)
     tables = ReportingTables(
         organic_soils=organic_soils_table(result.emissions, result.library.categories, result.settings.mass_ratios,
@@ -104,7 +102,6 @@ def reporting_tables(result) -> ReportingTables:
         gas_series=gas_series(result.aggregates, result.categories["gas"].unique(), result.gwp),
         category_series=category_series(result.categories, years),
         base_year=years[0], latest_year=years[-1])
-    result._reporting_tables = (result.emissions, result.categories, tables)
     return tables
 
 

@@ -542,31 +542,38 @@ def render_html(result, chart_svgs: dict[str, str] | None = None) -> str:
     return env.get_template("report.html.j2").render(**context, css=css)
 
 
-def write_report(result, folder: Path) -> RestrictedFetcher:
+def write_report(result, folder: Path, progress=None) -> RestrictedFetcher:
     """Write report.html and report.pdf; return the fetcher (its ``refused`` list names what was refused)."""
+    return layout_report(result, folder, progress)[1]
+
+
+def layout_report(result, folder: Path, progress=None):
+    """Write report.html and report.pdf; return the laid-out document (:func:`write_archive` reuses it: the
+    layout is done once) and the fetcher."""
     from weasyprint import HTML
 
     from ..progress import stage
 
-    stage(getattr(result, "_progress", None), "laying out the report")
+    stage(progress, "laying out the report")
     html = render_html(result)
     (folder / "report.html").write_text(html, encoding="utf-8")
     fetcher = RestrictedFetcher(resource_dir("report_templates"))
     document = HTML(string=html, base_url=str(resource_dir("report_templates")) + "/", url_fetcher=fetcher).render()
     with _fixed_font_dates(result):
         document.write_pdf(folder / "report.pdf", pdf_identifier=_identifier(result))
-    result._report_document = document  # reused by write_archive: the layout is done once
-    return fetcher
+    return document, fetcher
 
 
-def write_archive(result, folder: Path) -> None:
-    """report-archive.pdf: PDF/A-3b carrying emissions.csv, datapackage.json and manifest.json as attachments."""
+def write_archive(result, folder: Path, document=None, progress=None) -> None:
+    """report-archive.pdf: PDF/A-3b carrying emissions.csv, datapackage.json and manifest.json as attachments.
+
+    ``document`` is the report's layout from :func:`layout_report`; without it, report.html is laid out again.
+    """
     from weasyprint import HTML, Attachment
 
     from ..progress import stage
 
-    stage(getattr(result, "_progress", None), "writing the PDF/A-3b archive")
-    document = getattr(result, "_report_document", None)
+    stage(progress, "writing the PDF/A-3b archive")
     if document is None:
         html = (folder / "report.html").read_text(encoding="utf-8")
         fetcher = RestrictedFetcher(resource_dir("report_templates"))

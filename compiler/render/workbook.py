@@ -89,10 +89,10 @@ def sheet_records(frame: pd.DataFrame, columns):
     return data.itertuples(index=False, name=None)
 
 
-def write_workbook(result, path: Path) -> None:
+def write_workbook(result, path: Path, progress=None) -> None:
     from ..progress import stage
 
-    stage(getattr(result, "_progress", None), "writing the workbook")
+    stage(progress, "writing the workbook")
     s = result.settings
     wb = Workbook(write_only=True)
     agg = result.aggregates
