@@ -42,6 +42,10 @@ class Aggregates:
     category_co2eq_t: pd.DataFrame
     # per region, every year [t CO2-eq]: index region
     region_co2eq_t: pd.DataFrame
+    # per year and pathway / land use, from the results rows [t CO2-eq]: index year (years with an estimate),
+    # columns the pathways / land uses estimated (the report's stacked charts)
+    pathway_co2eq_t: pd.DataFrame
+    land_use_co2eq_t: pd.DataFrame
     # organic-soil area per year and soil status [ha]: index year, columns drained / rewetted
     area_ha: pd.DataFrame
     # organic-soil area per year, all statuses [ha]: index year
@@ -121,6 +125,8 @@ def aggregate(categories: pd.DataFrame, emissions: pd.DataFrame, activity: pd.Da
     rows = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
     region = (rows.groupby(["region", "year"])["co2eq_t"].sum().unstack("year")
               .reindex(columns=list(years)).fillna(0.0))
+    by_pathway, by_land_use = (rows.pivot_table(index="year", columns=column, values="co2eq_t", aggfunc="sum",
+                                                fill_value=0.0) for column in ("pathway", "land_use"))
     area = (activity.groupby(["year", "soil_status"])["area_ha"].sum().unstack("soil_status")
             .reindex(index=years, columns=["drained", "rewetted"]).fillna(0.0))
     area_total = activity.groupby("year")["area_ha"].sum()
@@ -130,5 +136,6 @@ def aggregate(categories: pd.DataFrame, emissions: pd.DataFrame, activity: pd.Da
                      .reindex(columns=list(years)))
     return Aggregates(base_year=base, latest_year=latest, years=years, total_co2eq_t=total,
                       gas_co2eq_t=gas_co2eq, gas_t=gas_t, category_cells=wide, category_co2eq_t=category_co2eq,
-                      region_co2eq_t=region, area_ha=area, area_total_ha=area_total,
+                      region_co2eq_t=region, pathway_co2eq_t=by_pathway,
+                      land_use_co2eq_t=by_land_use, area_ha=area, area_total_ha=area_total,
                       offsite_co2eq_t=offsite_co2eq, category_area_ha=category_area)
