@@ -431,11 +431,9 @@ def _uncertainty_context(result) -> dict | None:
             if not mt.empty:
                 mt = mt.iloc[0]
                 out["trend"]["mc"] = f"{mt['p2_5_pct']:+.1f} % to {mt['p97_5_pct']:+.1f} %"
-        cells = a1.cells[a1.cells["year"] == s.last_year].copy()
-        cells["var"] = (cells["half_width_t"] * cells["co2eq_t"] / cells["emission_t"].where(cells["emission_t"] != 0)).fillna(0) ** 2
-        top = cells.sort_values("var", ascending=False).head(3)
-        share = top["var"] / cells["var"].sum() * 100 if cells["var"].sum() else top["var"] * 0
-        out["drivers"] = [f"{r['category_code']} {r['gas']} ({p:.0f} % of the variance)" for (_, r), p in zip(top.iterrows(), share)]
+        top = a1.variance_shares.head(3)  # the latest year's largest parts of the variance (uncertainty stage)
+        out["drivers"] = [f"{r['category_code']} {r['gas']} ({r['variance_share_pct']:.0f} % of the variance)"
+                          for r in top.to_dict("records")]
     if mc is not None:
         rows = mc.summary[(mc.summary["year"] == s.last_year) & (mc.summary["category_code"] != "total")]
         out["rows"] = [{"code": r["category_code"], "gas": r["gas"], "unit": r["unit"], "estimate": _fmt(r["estimate"], 1),
