@@ -1,8 +1,10 @@
 """report.html and report.pdf from report_templates/ (Jinja2, autoescaped; WeasyPrint for the PDF).
 
-Every number in the report is computed here from the result tables; the
-templates format and place them, and never hold a factor or a total of their
-own. WeasyPrint may fetch only files inside the template folder: any other
+Every total, share and series the report shows is computed once by the stage that
+owns it (``result.aggregates``, ``result.reporting_tables``, ``result.methods_chapter``,
+the analyses' results; see DEVELOPERS.md, "Which output shows which aggregate");
+this module picks and formats them, and the templates place them and never hold a
+factor or a total of their own. WeasyPrint may fetch only files inside the template folder: any other
 URL or path, including one that a user's text might carry, is refused.
 """
 
