@@ -2,10 +2,12 @@
 
 One text, three renderings: Markdown (``methods_chapter.md``), a Word document
 (``methods_chapter.docx``, python-docx, tables as real tables) and the report's
-appendix. The text is a list of blocks made by :func:`chapter`; the renderers
-only lay them out. Every number comes from the result or from
-:func:`compiler.reporting_tables.reporting_tables` (the figures of the
-workbook's timeseries_categories and organic_soils sheets).
+appendix. The text is a list of blocks made once by :func:`chapter` (at the end of
+:func:`compiler.compile_inventory`, kept as ``result.methods_chapter``); the renderers
+only lay them out. Every number comes from the result: its aggregates
+(``result.aggregates``: category emissions and areas), its reporting tables
+(``result.reporting_tables``: the figures of the workbook's timeseries_categories
+sheet), its recalculation totals and its analyses; the chapter adds nothing up.
 
 Per category: description (areas, emissions, trend, share), methodological
 issues (equations, factors with sources and tiers, overrides with citations,
