@@ -7,7 +7,7 @@ appendix. The text is a list of blocks made once by :func:`chapter` (at the end 
 only lay them out. Every number comes from the result: its aggregates
 (``result.aggregates``: category emissions and areas), its reporting tables
 (``result.reporting_tables``: the figures of the workbook's timeseries_categories
-sheet), its recalculation totals and its analyses; the chapter adds nothing up.
+sheet), its recalculation totals and its analyses; the chapter sums no emission or area.
 
 Per category: description (areas, emissions, trend, share), methodological
 issues (equations, factors with sources and tiers, overrides with citations,
