@@ -17,6 +17,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from .offsite_peat import OFFSITE_PATHWAY
+
 GASES_WITH_GWP = ("CO2", "CH4", "N2O")
 REGIONS_SHOWN = 30  # regions listed one by one in the report; the rest are one line (the workbook has them all)
 CATEGORY = ["category_code", "category_name", "gas"]
@@ -40,10 +42,19 @@ class Aggregates:
     category_co2eq_t: pd.DataFrame
     # per region, every year [t CO2-eq]: index region
     region_co2eq_t: pd.DataFrame
+    # per year and pathway / land use, from the results rows [t CO2-eq]: index year (years with an estimate),
+    # columns the pathways / land uses estimated (the report's stacked charts)
+    pathway_co2eq_t: pd.DataFrame
+    land_use_co2eq_t: pd.DataFrame
     # organic-soil area per year and soil status [ha]: index year, columns drained / rewetted
     area_ha: pd.DataFrame
     # organic-soil area per year, all statuses [ha]: index year
     area_total_ha: pd.Series
+    # off-site CO2 of extracted peat per category, gas and year [t CO2-eq]: index (category_code, gas, year)
+    offsite_co2eq_t: pd.Series
+    # organic-soil area of each category per year [ha]: the largest area of its gas cells (a category's gases
+    # rest on the same land, except where a pathway covers part of it); index category_code, columns year
+    category_area_ha: pd.DataFrame
 
     def largest_regions(self, shown: int = REGIONS_SHOWN) -> tuple[pd.DataFrame, pd.Series | None, int]:
         """The ``shown`` regions of largest absolute latest-year emissions (in their order), and the rest
@@ -59,6 +70,19 @@ class Aggregates:
     def change(self, base: float, latest: float) -> float | None:
         """Relative change from the base to the latest year [fraction]; None where the base is zero."""
         return (latest - base) / abs(base) if base else None
+
+    @property
+    def category_change_co2eq_t(self) -> pd.Series:
+        """Change of each category from the base to the latest year [t CO2-eq]: index as category_co2eq_t."""
+        table = self.category_co2eq_t
+        return table[self.latest_year] - table[self.base_year]
+
+    def gross_share(self, category: tuple[str, str], year: int) -> float:
+        """A category's share of the gross total of a year (the sum of every category's absolute value)
+        [fraction]; 0 where that sum is zero."""
+        column = self.category_co2eq_t[year]
+        gross = column.abs().sum()
+        return abs(column[category]) / gross if gross else 0.0
 
     @property
     def total_base_t(self) -> float:
@@ -101,9 +125,17 @@ def aggregate(categories: pd.DataFrame, emissions: pd.DataFrame, activity: pd.Da
     rows = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
     region = (rows.groupby(["region", "year"])["co2eq_t"].sum().unstack("year")
               .reindex(columns=list(years)).fillna(0.0))
+    by_pathway, by_land_use = (rows.pivot_table(index="year", columns=column, values="co2eq_t", aggfunc="sum",
+                                                fill_value=0.0) for column in ("pathway", "land_use"))
     area = (activity.groupby(["year", "soil_status"])["area_ha"].sum().unstack("soil_status")
             .reindex(index=years, columns=["drained", "rewetted"]).fillna(0.0))
     area_total = activity.groupby("year")["area_ha"].sum()
+    offsite = emissions[(emissions["notation_key"] == "") & (emissions["pathway"] == OFFSITE_PATHWAY)]
+    offsite_co2eq = offsite.groupby(["category_code", "gas", "year"])["co2eq_t"].sum()
+    category_area = (categories.groupby(["category_code", "year"], sort=False)["area_ha"].max().unstack("year")
+                     .reindex(columns=list(years)))
     return Aggregates(base_year=base, latest_year=latest, years=years, total_co2eq_t=total,
                       gas_co2eq_t=gas_co2eq, gas_t=gas_t, category_cells=wide, category_co2eq_t=category_co2eq,
-                      region_co2eq_t=region, area_ha=area, area_total_ha=area_total)
+                      region_co2eq_t=region, pathway_co2eq_t=by_pathway,
+                      land_use_co2eq_t=by_land_use, area_ha=area, area_total_ha=area_total,
+                      offsite_co2eq_t=offsite_co2eq, category_area_ha=category_area)

@@ -141,10 +141,8 @@ def _compile(settings: Path, out: Path, quiet: bool, report: bool, archive: bool
         raise InputError("--archive needs the report: drop --no-report")
     with Progress(quiet) as progress:
         result = compile_inventory(settings, progress=progress, **overrides)
-        result._progress = progress
         progress.stage("writing the CSV tables")
-        folder = result.write(out, report=report, archive=archive)
-        result._progress = None
+        folder = result.write(out, report=report, archive=archive, progress=progress)
     if not quiet:
         _print_summary(result, folder)
     return EXIT_OK
@@ -213,7 +211,7 @@ def _print_scenarios(result, outcome, folder: Path) -> None:
 def _compare(args) -> int:
     import pandas as pd
 
-    from .recalculations import PARTS, compare, load_export
+    from .recalculations import PARTS, compare, load_export, year_totals
 
     if args.csv:
         _refuse_csv_over_inputs(Path(args.csv), [Path(args.previous), Path(args.current)])
@@ -241,7 +239,7 @@ def _compare(args) -> int:
 
     with pd.option_context("display.width", 250, "display.max_columns", None, "display.float_format", one_decimal):
         print(view[cols].to_string(index=False) if not view.empty else "  no differences")
-    total = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum().loc[year]
+    total = year_totals(by_cell).loc[year]
     print(f"Total {year}: {total['previous_co2eq_t'] / 1000:,.1f} -> {total['current_co2eq_t'] / 1000:,.1f} kt CO2-eq")
     return EXIT_OK
 

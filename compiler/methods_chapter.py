@@ -2,10 +2,12 @@
 
 One text, three renderings: Markdown (``methods_chapter.md``), a Word document
 (``methods_chapter.docx``, python-docx, tables as real tables) and the report's
-appendix. The text is a list of blocks made by :func:`chapter`; the renderers
-only lay them out. Every number comes from the result or from
-:func:`compiler.reporting_tables.reporting_tables` (the figures of the
-workbook's timeseries_categories and organic_soils sheets).
+appendix. The text is a list of blocks made once by :func:`chapter` (at the end of
+:func:`compiler.compile_inventory`, kept as ``result.methods_chapter``); the renderers
+only lay them out. Every number comes from the result: its aggregates
+(``result.aggregates``: category emissions and areas), its reporting tables
+(``result.reporting_tables``: the figures of the workbook's timeseries_categories
+sheet), its recalculation totals and its analyses; the chapter sums no emission or area.
 
 Per category: description (areas, emissions, trend, share), methodological
 issues (equations, factors with sources and tiers, overrides with citations,
@@ -27,7 +29,6 @@ import numpy as np
 import pandas as pd
 
 from .allocation_schemes import SCHEME_NAMES
-from .reporting_tables import reporting_tables
 from .factors import unchecked_factors
 
 SECTIONS = ("Description", "Methodological issues", "Uncertainty and time-series consistency",
@@ -74,18 +75,10 @@ def reported_categories(result) -> list[str]:
 
 
 def chapter(result) -> list[Block]:
-    """The chapter's blocks, made once per results table and kept on the result."""
-    cached = getattr(result, "_methods_chapter", None)
-    if cached is not None and cached[0] is result.emissions:
-        return cached[1]
-    blocks = _chapter(result)
-    result._methods_chapter = (result.emissions, blocks)
-    return blocks
-
-
-def _chapter(result) -> list[Block]:
+    """The chapter's blocks (made once by :func:`compiler.compile_inventory`, which keeps them as
+    ``result.methods_chapter``; the renderings read that field)."""
     s = result.settings
-    tables = reporting_tables(result)
+    tables = result.reporting_tables
     base, latest = tables.base_year, tables.latest_year
     blocks = [Block("h1", f"Methods: organic soils - {s.name}")]
     scheme = SCHEME_NAMES.get(s.allocation, s.allocation)
@@ -121,9 +114,10 @@ def _category(result, tables, code: str, total_latest: float) -> list[Block]:
     mine = cats[cats["category_code"] == code]
     name = mine["category_name"].iloc[0]
     series = tables.category_series[tables.category_series["category_code"] == code]
-    est = mine[mine["emission_t"].notna()]
-    eq = est.groupby("year")["co2eq_t"].sum(min_count=1).div(1000.0)
-    area = mine.groupby("year")["area_ha"].max().div(1000.0)
+    agg = result.aggregates
+    area = agg.category_area_ha.loc[code].div(1000.0)
+    has_eq = (code, name) in agg.category_co2eq_t.index  # an estimate of a gas with a GWP in some year
+    eq = agg.category_co2eq_t.loc[(code, name)].div(1000.0) if has_eq else pd.Series(dtype=float)
     eq_base, eq_latest = eq.get(base, 0.0), eq.get(latest, 0.0)
     blocks = [Block("h2", f"{code} {name}"), Block("h3", SECTIONS[0])]
     sentence = f"{name} ({code}) "
@@ -133,7 +127,7 @@ def _category(result, tables, code: str, total_latest: float) -> list[Block]:
                      else f" (none in {base}). ")
     else:
         sentence += f"has no organic-soil area in {latest}. "
-    if eq.notna().any():
+    if has_eq:
         sentence += f"Emissions were {_kt(eq_latest)} kt CO2-eq in {latest} and {_kt(eq_base)} kt CO2-eq in {base}"
         if eq_base:
             sentence += f", a change of {_pct((eq_latest - eq_base) / abs(eq_base) * 100)}"
@@ -243,13 +237,13 @@ def _recalculation_text(result, code) -> str:
     if mine.empty or not (mine["difference_co2eq_t"].abs() > 0.05).any():
         return f"The estimates equal those of the previous submission ({result.recalculation['file']})."
     year = int(mine["year"].max())
-    last = mine[mine["year"] == year]
-    diff = last["difference_co2eq_t"].sum() / 1000.0
+    last = result.recalculation["by_category"].loc[(code, year)]  # summed over the gases [t CO2-eq]
+    diff = last["difference_co2eq_t"] / 1000.0
     causes = [c for c in ("activity_change", "gwp_change", "factor_set_change", "shipped_value_change",
                           "override_change", "strata_added", "strata_removed", "allocation_change") if c in last]
     if "gwp_change" not in last:
         causes.insert(1, "factor_change")
-    detail = [(c, last[c].sum() / 1000.0) for c in causes]
+    detail = [(c, last[c] / 1000.0) for c in causes]
     parts = _join(f"{c.replace('_', ' ')} {v:+,.3f}" for c, v in detail if abs(v) >= 0.0005)
     return (f"Against the previous submission ({result.recalculation['file']}), the estimate of {year} changes by "
             f"{diff:+,.3f} kt CO2-eq: {parts or 'no single cause above 0.0005 kt'} (kt CO2-eq; the recalculations "
@@ -345,7 +339,7 @@ def _fixed_zip(data: bytes, stamp: _dt.datetime, path: Path) -> None:
 
 def write_chapter(result, folder: Path) -> list[Block]:
     """methods_chapter.md and methods_chapter.docx in ``folder``; returns the blocks."""
-    blocks = chapter(result)
+    blocks = result.methods_chapter
     (folder / "methods_chapter.md").write_text(to_markdown(blocks), encoding="utf-8")
     write_docx(blocks, folder / "methods_chapter.docx", result.compile_date)
     return blocks

@@ -53,6 +53,21 @@ class InventoryResult:
     review_log: pd.DataFrame = field(default_factory=pd.DataFrame)
     aggregates: Aggregates | None = None  # every total and cross-table an output shows (compiler.aggregate)
     peat_production: pd.DataFrame = field(default_factory=pd.DataFrame)  # validated [inputs] peat_production
+    # the submission aggregates (compiler.reporting_tables) and the methods chapter's blocks
+    # (compiler.methods_chapter), made once by compile_inventory after the analyses
+    reporting_tables: object = field(default=None, repr=False)
+    methods_chapter: list | None = field(default=None, repr=False)
+    _frozen: bool = field(default=False, init=False, repr=False, compare=False)
+
+    def __setattr__(self, name: str, value) -> None:
+        if getattr(self, "_frozen", False):
+            raise AttributeError(f"a compiled result is read-only (cannot set {name!r}); make a changed copy with "
+                                 "dataclasses.replace(result, ...)")
+        object.__setattr__(self, name, value)
+
+    def _freeze(self) -> None:
+        """End of :func:`compile_inventory`: from here on no attribute may be assigned."""
+        object.__setattr__(self, "_frozen", True)
 
     @property
     def totals(self) -> pd.DataFrame:
@@ -154,7 +169,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
     _check_area_balance(activity, emissions, log)
     recalculation = None
     if previous is not None:
-        from .recalculations import FACTOR_PARTS, compare, trend_effect
+        from .recalculations import FACTOR_PARTS, category_totals, compare, trend_effect, year_totals
 
         current = emissions[emissions["notation_key"] == ""]
         by_cell, by_row = compare(previous, current,
@@ -162,6 +177,7 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
         parts = [c for c in FACTOR_PARTS if c in by_cell]
         recalculation = {"by_cell": by_cell, "by_row": by_row, "file": settings.previous_submission.name,
                          "factor_parts_t": by_cell[parts].sum().to_dict(),  # all cells and common years [t CO2-eq]
+                         "by_year": year_totals(by_cell), "by_category": category_totals(by_cell),
                          **trend_effect(by_cell, settings.first_year, min(settings.last_year, int(previous["year"].max())))}
     used_ids = set(emissions["factor_id"].unique()) | set(emissions["parameter_id"].unique())
     factors_used = register[register["factor_id"].isin(used_ids)].copy()
@@ -180,7 +196,19 @@ def compile_inventory(settings: Settings | str | Path, progress=None, analyses: 
                              peat_production=peat_production)
     if analyses:
         _analyse(result, progress, national)
+    _report_tables(result)
+    result._freeze()
     return result
+
+
+def _report_tables(result: InventoryResult) -> None:
+    """The submission aggregates and the methods chapter, once, from the analysed result (the chapter reads the
+    uncertainty, key categories and findings; the organic-soils table the QA/QC findings)."""
+    from .methods_chapter import chapter
+    from .reporting_tables import reporting_tables
+
+    result.reporting_tables = reporting_tables(result)
+    result.methods_chapter = chapter(result)
 
 
 def _load_other_inputs(settings: Settings, log: FindingLog) -> tuple[pd.DataFrame | None, pd.DataFrame | None]:

@@ -554,15 +554,26 @@ ESTIMATE_COLUMNS_LEFT_OUT = ("notation_reason", "equation", "emission_basis", "e
                              "activity_source", "default_factor_id", "land_category_code")
 
 
+class _Checked:
+    """The result as :func:`run_checks` hands it to the checks: every attribute of the result, and the
+    estimate rows (:func:`_estimates`) made once for all the checks (nothing is stored on the result)."""
+
+    def __init__(self, result):
+        self._result = result
+        self.estimates = _estimates(result)
+
+    def __getattr__(self, name: str):
+        return getattr(self._result, name)
+
+
 def _estimates(result) -> pd.DataFrame:
     """The estimate rows, with the columns the checks read: made once per :func:`run_checks`.
 
     (A filtered copy of the whole results table per check would hold several times its memory at a
     million stratum-years.)
     """
-    cached = getattr(result, "_qaqc_estimates", None)
-    if cached is not None and cached[0] is result.emissions:
-        return cached[1]
+    if isinstance(result, _Checked):
+        return result.estimates
     em = result.emissions
     columns = [c for c in em.columns if c not in ESTIMATE_COLUMNS_LEFT_OUT]
     return em.loc[(em["notation_key"] == "").to_numpy(dtype=bool), columns]
@@ -1283,13 +1294,10 @@ def run_checks(result, thresholds: QaqcThresholds | None = None, national_totals
     """
     thresholds = thresholds or QaqcThresholds()
     findings: list[Finding] = []
-    result._qaqc_estimates = (result.emissions, _estimates(result))  # shared by the checks, dropped after
-    try:
-        for check in CHECK_FUNCTIONS:
-            findings += check(result, thresholds)
-        findings += check_ne_insignificance(result, thresholds, national_totals)
-        findings += check_assumptions(result, thresholds, evidence)
-    finally:
-        result._qaqc_estimates = None
+    checked = _Checked(result)  # the estimate rows, made once and shared by the checks, dropped after
+    for check in CHECK_FUNCTIONS:
+        findings += check(checked, thresholds)
+    findings += check_ne_insignificance(checked, thresholds, national_totals)
+    findings += check_assumptions(checked, thresholds, evidence)
     order = {c.check: i for i, c in enumerate(CHECKS)}
     return sorted(findings, key=lambda f: order.get(f.check, len(order)))  # stable: keeps each check's order

@@ -260,9 +260,23 @@ def compare(previous: pd.DataFrame, current: pd.DataFrame,
     return cell.sort_values(keys).reset_index(drop=True), rows
 
 
+def year_totals(by_cell: pd.DataFrame) -> pd.DataFrame:
+    """The previous and the current net total of each year both cover [t CO2-eq]: index year, columns
+    previous_co2eq_t, current_co2eq_t."""
+    return by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum()
+
+
+def category_totals(by_cell: pd.DataFrame) -> pd.DataFrame:
+    """The difference of each category and year and its parts, summed over the gases [t CO2-eq]: index
+    (category_code, year), columns difference_co2eq_t and the parts of :data:`PARTS` and :data:`FACTOR_PARTS`
+    that ``by_cell`` has."""
+    columns = ["difference_co2eq_t", *(c for c in [*PARTS, *FACTOR_PARTS] if c in by_cell)]
+    return by_cell.groupby(["category_code", "year"])[columns].sum()
+
+
 def trend_effect(by_cell: pd.DataFrame, base: int, latest: int) -> dict:
     """Change of the total's trend (base -> latest, %) between the two submissions."""
-    tot = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum()
+    tot = year_totals(by_cell)
     def trend(col):
         if base not in tot.index or latest not in tot.index or not tot.loc[base, col]:
             return float("nan")

@@ -94,18 +94,15 @@ class ReportingTables:
 
 
 def reporting_tables(result) -> ReportingTables:
-    """The reporting tables of ``result``, made once per results table and kept on the result."""
-    cached = getattr(result, "_reporting_tables", None)
-    if cached is not None and cached[0] is result.emissions and cached[1] is result.categories:
-        return cached[2]
+    """The reporting tables of ``result`` (made once by :func:`compiler.compile_inventory`, which keeps them as
+    ``result.reporting_tables``; renderers read that field)."""
     years = list(result.settings.years)
     tables = ReportingTables(
         organic_soils=organic_soils_table(result.emissions, result.library.categories, result.settings.mass_ratios,
                                           result.finding_list),
-        gas_series=gas_series(result.categories, result.gwp, years),
+        gas_series=gas_series(result.aggregates, result.categories["gas"].unique(), result.gwp),
         category_series=category_series(result.categories, years),
         base_year=years[0], latest_year=years[-1])
-    result._reporting_tables = (result.emissions, result.categories, tables)
     return tables
 
 
@@ -235,25 +232,32 @@ def _trend(first, last) -> float:
     return (last - first) / abs(first) * 100.0
 
 
-def gas_series(categories: pd.DataFrame, gwp: dict, years) -> pd.DataFrame:
-    """Each gas in kt and kt CO2-eq, and the total in kt CO2-eq, per year (wide) with the trend [%]."""
-    est = categories[categories["emission_t"].notna()]
+def gas_series(aggregates, gases, gwp: dict) -> pd.DataFrame:
+    """Each gas in kt and kt CO2-eq, and the total in kt CO2-eq, per year (wide) with the trend [%].
+
+    The figures of each gas are those of the aggregate stage (:attr:`Aggregates.gas_t`,
+    :attr:`Aggregates.gas_co2eq_t`) in kt; ``gases`` are the gases of the reporting cells. The total is the
+    sum of the gas rows shown: it equals :attr:`Aggregates.total_co2eq_t` in kt to the last digit or two
+    (the same terms added in another order).
+    """
+    years = list(aggregates.years)
     cols = [str(y) for y in years]
     rows = []
-    gases = [g for g in ("CO2", "CH4", "N2O", "CO") if g in set(categories["gas"])]
-    kt = est.groupby(["gas", "year"])["emission_t"].sum().div(1000.0)
-    eq = est.groupby(["gas", "year"])["co2eq_t"].sum(min_count=1).div(1000.0)
+    gases = [g for g in ("CO2", "CH4", "N2O", "CO") if g in set(gases)]
+
+    def kt(table: pd.DataFrame, gas: str) -> list[float]:
+        if gas not in table.columns:
+            return [0.0] * len(years)
+        return (table[gas].reindex(years).fillna(0.0) / 1000.0).tolist()
+
     for gas in gases:
-        values = [float(kt.get((gas, y), 0.0)) for y in years]
-        rows.append({"quantity": gas, "unit": f"kt {gas}", **dict(zip(cols, values))})
+        rows.append({"quantity": gas, "unit": f"kt {gas}", **dict(zip(cols, kt(aggregates.gas_t, gas)))})
     total = np.zeros(len(years))
     for gas in gases:
-        if gas not in gwp:
-            continue
-        values = np.array([eq.get((gas, y), 0.0) for y in years], dtype=float)
-        values = np.nan_to_num(values)
-        total += values
-        rows.append({"quantity": gas, "unit": "kt CO2-eq", **dict(zip(cols, values.tolist()))})
+        if gas in gwp:
+            values = kt(aggregates.gas_co2eq_t, gas)
+            total += np.array(values)  # the gas rows in kt added in this order: the bytes of earlier exports
+            rows.append({"quantity": gas, "unit": "kt CO2-eq", **dict(zip(cols, values))})
     rows.append({"quantity": "Total", "unit": "kt CO2-eq", **dict(zip(cols, total.tolist()))})
     frame = pd.DataFrame(rows, columns=["quantity", "unit", *cols])
     frame["trend_pct"] = [_trend(r[cols[0]], r[cols[-1]]) for r in frame.to_dict("records")]

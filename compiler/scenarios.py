@@ -752,6 +752,12 @@ class ScenarioResult:
         ``delay_years``, ``extra_warming_mk_<year>`` [mK, this scenario minus
         the one it postpones] and ``extra_cumulative_co2eq_t`` [t, to the
         horizon].
+    area_totals : DataFrame
+        ``areas`` summed by ``scenario``, ``year``, ``region``, ``land_use``,
+        ``soil_status``: ``area_ha`` [ha] (``scenario_areas.csv``).
+    rewetted_area : DataFrame
+        Rewetted area per ``scenario`` and ``year``: ``area_ha`` [ha] (the
+        report's chart).
     """
 
     scenarios: list[Scenario]
@@ -769,6 +775,8 @@ class ScenarioResult:
     gwp_star_form: str = "smith2021"
     timing: str = cr.TIMING_CONVENTION
     findings: list[Finding] = field(default_factory=list, repr=False)
+    area_totals: pd.DataFrame = field(default_factory=pd.DataFrame)
+    rewetted_area: pd.DataFrame = field(default_factory=pd.DataFrame)
 
 
 def run_scenarios(result, scenarios: list[Scenario], horizon: int | None = None,
@@ -851,7 +859,11 @@ def run_scenarios(result, scenarios: list[Scenario], horizon: int | None = None,
     return ScenarioResult(scenarios=scenarios, start_year=start, horizon=horizon, areas=areas, cohorts=cohorts,
                           detail=detail, emissions=emissions, climate=climate, summary=summary,
                           metrics=cr.metric_table(params), parameters=params, gwp=dict(result.gwp),
-                          gwp_star_form=form, findings=notes + findings)
+                          gwp_star_form=form, findings=notes + findings,
+                          area_totals=areas.groupby(["scenario", "year", "region", "land_use", "soil_status"],
+                                                    sort=False, as_index=False)["area_ha"].sum(),
+                          rewetted_area=(areas[areas["soil_status"] == "rewetted"]
+                                         .groupby(["scenario", "year"], sort=False)["area_ha"].sum().reset_index()))
 
 
 def _check_against_inventory(scenarios, strata: pd.DataFrame, result, problems: _Problems) -> None:

@@ -637,6 +637,9 @@ class Approach1Result:
         ``ci_low``, ``ci_high``, ``half_width`` [factor unit], ``relative_pct`` [%],
         ``approach1_rule`` (key of :data:`METHOD_RULES`).
     findings : list of Finding
+    variance_shares : pandas.DataFrame
+        The latest year's cells (:func:`variance_shares`), largest contribution to the variance of the
+        total first.
     """
 
     cells: pd.DataFrame
@@ -646,6 +649,21 @@ class Approach1Result:
     rows: pd.DataFrame
     inputs: pd.DataFrame
     findings: list[Finding] = field(default_factory=list)
+    variance_shares: pd.DataFrame = field(default_factory=pd.DataFrame)
+
+
+def variance_shares(cells: pd.DataFrame, year: int) -> pd.DataFrame:
+    """The cells of ``year`` (:attr:`Approach1Result.cells`) with their part of the variance of the total, largest
+    first: ``variance`` = (half_width_t x co2eq_t / emission_t)**2 [(t CO2-eq)**2; 0 where the estimate is 0 or
+    has no GWP] and ``variance_share_pct``, its share of the sum over the cells [%; 0 where that sum is 0]
+    (categories independent, as in Eq. 3.2)."""
+    out = cells[cells["year"] == year].copy()
+    out["variance"] = (out["half_width_t"] * out["co2eq_t"]
+                       / out["emission_t"].where(out["emission_t"] != 0)).fillna(0) ** 2
+    total = out["variance"].sum()
+    out = out.sort_values("variance", ascending=False)
+    out["variance_share_pct"] = out["variance"] / total * 100 if total else out["variance"] * 0
+    return out
 
 
 def approach1(result) -> Approach1Result:
@@ -758,7 +776,8 @@ def approach1(result) -> Approach1Result:
     inputs_table = inputs[["factor_id", "quantity", "value", "unit", "ci_low", "ci_high", "half_width",
                            "relative_pct", "approach1_rule"]].copy()
     return Approach1Result(cells=cell_table, total=total, trend_table=trend_table, trend=trend, rows=row_table,
-                           inputs=inputs_table, findings=list(model.findings))
+                           inputs=inputs_table, findings=list(model.findings),
+                           variance_shares=variance_shares(cell_table, max(model.years)))
 
 
 def _shared_trend(rows: pd.DataFrame, parts, years: list[int], group: list[str]) -> pd.DataFrame:

@@ -59,3 +59,33 @@ def test_the_report_lists_the_largest_regions_and_sums_the_rest(demo_result):
         assert top[year].sum() + rest[year] == pytest.approx(agg.region_co2eq_t[year].sum(), rel=1e-12)
     all_shown, none, zero = agg.largest_regions(len(agg.region_co2eq_t))
     assert none is None and zero == 0 and len(all_shown) == len(agg.region_co2eq_t)
+
+
+def test_every_breakdown_adds_up_to_the_total(demo_result):
+    agg = demo_result.aggregates
+    for year in agg.years:
+        for table in (agg.pathway_co2eq_t, agg.land_use_co2eq_t):
+            assert table.loc[year].sum() == pytest.approx(agg.total_co2eq_t[year], rel=1e-9)
+    em = demo_result.emissions
+    offsite = em[(em["pathway"] == "co2_offsite") & (em["notation_key"] == "")]
+    assert len(offsite) and agg.offsite_co2eq_t.sum() == pytest.approx(offsite["co2eq_t"].sum(), rel=1e-12)
+    shares = [agg.gross_share(c, agg.latest_year) for c in agg.category_co2eq_t.index]
+    assert sum(shares) == pytest.approx(1.0, rel=1e-12)
+    change = agg.category_change_co2eq_t
+    assert change.sum() == pytest.approx(agg.total_latest_t - agg.total_base_t, rel=1e-9)
+
+
+def test_the_report_summary_shows_the_aggregate(demo_result):
+    # The report formats the aggregate stage's figures: the same number in kt, one decimal.
+    from compiler.render.report import build_context
+
+    agg = demo_result.aggregates
+    context = build_context(demo_result, chart_svgs={})
+    kt = lambda t: f"{t / 1000:,.1f}".replace("-", "\u2212")
+    assert context["total_latest"] == kt(agg.total_latest_t)
+    assert [g["latest"] for g in context["by_gas"]] == [kt(agg.gas_co2eq_t.at[agg.latest_year, g])
+                                                        for g in agg.gas_co2eq_t.columns]
+    shown = {c["code"]: c["latest"] for c in context["by_category"]}
+    for (code, _), value in agg.category_co2eq_t[agg.latest_year].items():
+        if code in shown:
+            assert shown[code] == kt(value)

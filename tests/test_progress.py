@@ -22,8 +22,7 @@ def test_every_long_step_is_announced(tmp_path):
     settings = write_inventory(tmp_path / "inv", [stratum(year=y) for y in (2019, 2020)], first=2019, last=2020)
     recorder = Recorder()
     result = compile_inventory(settings, progress=recorder, iterations=200)
-    result._progress = recorder
-    result.write(tmp_path / "out", parallel=False)
+    result.write(tmp_path / "out", parallel=False, progress=recorder)
     assert recorder.stages == ["reading the inputs", "filling gaps in the area series",
                                "computing emissions and removals", "QA/QC checks",
                                "uncertainty (Approach 1, Monte Carlo)", "key categories", "writing the workbook",

@@ -381,7 +381,7 @@ def test_duplicated_fire_rows_are_an_error(tmp_path):
     result = compile_inventory(settings, analyses=False)
     fires = result.emissions[result.emissions["pathway"].str.startswith("fire")]
     twin = fires.assign(record_id=fires["record_id"] + 1000, input_row=3)
-    result.emissions = pd.concat([result.emissions, twin], ignore_index=True)
+    result = with_tables(result, emissions=pd.concat([result.emissions, twin], ignore_index=True))
     found = only(run(result), "duplicated_strata")
     assert len(found) == 1 and found[0].severity == "error"
     assert "appear more than once: 2020 Testvale temperate cropland drained wildfire in rows 2, 3" in found[0].message

@@ -129,3 +129,15 @@ def test_demo_off_site_peat_co2_is_a_line_of_its_own(demo_result):
     by_year = rows.groupby("year")["emission_t"].sum() / 1000.0
     assert np.allclose(off.groupby("year")["co2_offsite_kt"].sum().reindex(by_year.index).to_numpy(), by_year.to_numpy(),
                        rtol=1e-12)
+
+
+def test_gas_series_reads_the_aggregate_stage(demo_result):
+    # One home per total: each gas row is the aggregate stage's figure in kt, to the last bit; the total row adds
+    # the gas rows shown, which equals the aggregate's total up to the order of the additions.
+    agg = demo_result.aggregates
+    g = reporting_tables(demo_result).gas_series.set_index(["quantity", "unit"])
+    for y in agg.years:
+        for gas in ("CO2", "CH4", "N2O"):
+            assert g.loc[(gas, f"kt {gas}"), str(y)] == agg.gas_t.at[y, gas] / 1000
+            assert g.loc[(gas, "kt CO2-eq"), str(y)] == agg.gas_co2eq_t.at[y, gas] / 1000
+        assert g.loc[("Total", "kt CO2-eq"), str(y)] == pytest.approx(agg.total_co2eq_t[y] / 1000, rel=1e-12)

@@ -146,26 +146,23 @@ def _nothing(ax, text: str) -> None:
     ax.set_yticks([])
 
 
-def _kt(est: pd.DataFrame, column: str) -> pd.DataFrame:
-    return est.pivot_table(index="year", columns=column, values="co2eq_t", aggfunc="sum", fill_value=0.0) / 1000
-
-
-def _stacked_chart(emissions: pd.DataFrame, column: str, styles: dict, title: str, labels: dict | None = None) -> str:
-    """Net emissions stacked by ``column`` (pathway, land use, gas), in kt CO2-eq."""
-    est = emissions[(emissions["notation_key"] == "") & emissions["co2eq_t"].notna()]
+def _stacked_chart(table_t: pd.DataFrame, name: str, styles: dict, title: str, labels: dict | None = None) -> str:
+    """Net emissions per year stacked by the columns of ``table_t`` (an aggregate in t CO2-eq), in kt CO2-eq."""
     fig, ax = _half()
-    _stack(ax, _kt(est, column), styles, labels)
+    _stack(ax, table_t / 1000, styles, labels)
     ax.set_ylabel("kt CO2-eq per year")
     ax.set_title(title, loc="left")
-    return svg_text(fig, column)
+    return svg_text(fig, name)
 
 
-def emissions_by_pathway(emissions: pd.DataFrame) -> str:
-    return _stacked_chart(emissions, "pathway", PATHWAY_STYLE, "Net emissions by pathway", PATHWAY_LABEL)
+def emissions_by_pathway(by_pathway_t: pd.DataFrame) -> str:
+    """From :attr:`compiler.aggregate.Aggregates.pathway_co2eq_t`."""
+    return _stacked_chart(by_pathway_t, "pathway", PATHWAY_STYLE, "Net emissions by pathway", PATHWAY_LABEL)
 
 
-def emissions_by_land_use(emissions: pd.DataFrame) -> str:
-    return _stacked_chart(emissions, "land_use", LAND_USE_STYLE, "Net emissions by land use", LAND_USE_LABEL)
+def emissions_by_land_use(by_land_use_t: pd.DataFrame) -> str:
+    """From :attr:`compiler.aggregate.Aggregates.land_use_co2eq_t`."""
+    return _stacked_chart(by_land_use_t, "land_use", LAND_USE_STYLE, "Net emissions by land use", LAND_USE_LABEL)
 
 
 def area_by_status(activity: pd.DataFrame) -> str:
@@ -186,19 +183,21 @@ def area_by_status(activity: pd.DataFrame) -> str:
     return svg_text(fig, "area")
 
 
-def contribution_by_gas(emissions: pd.DataFrame) -> str:
-    return _stacked_chart(emissions, "gas", GAS_STYLE, "Contribution of each gas")
+def contribution_by_gas(by_gas_t: pd.DataFrame) -> str:
+    """From :attr:`compiler.aggregate.Aggregates.gas_co2eq_t`."""
+    return _stacked_chart(by_gas_t, "gas", GAS_STYLE, "Contribution of each gas")
 
 
 def all_charts(result) -> dict[str, str]:
+    agg = result.aggregates
     out = {
-        "pathway": emissions_by_pathway(result.emissions),
-        "land_use": emissions_by_land_use(result.emissions),
+        "pathway": emissions_by_pathway(agg.pathway_co2eq_t),
+        "land_use": emissions_by_land_use(agg.land_use_co2eq_t),
         "area": area_by_status(result.activity),
-        "gas": contribution_by_gas(result.emissions),
+        "gas": contribution_by_gas(agg.gas_co2eq_t.reindex(agg.pathway_co2eq_t.index)),  # years with an estimate
     }
     if result.recalculation is not None:
-        out["recalculation"] = recalculation_series(result.recalculation["by_cell"])
+        out["recalculation"] = recalculation_series(result.recalculation["by_year"])
     unc = result.uncertainty
     if unc is not None and unc.monte_carlo is not None:
         cells = unc.monte_carlo.summary[unc.monte_carlo.summary["category_code"] != "total"]
@@ -211,8 +210,9 @@ def all_charts(result) -> dict[str, str]:
     return out
 
 
-def recalculation_series(by_cell: pd.DataFrame) -> str:
-    tot = by_cell.groupby("year")[["previous_co2eq_t", "current_co2eq_t"]].sum() / 1000
+def recalculation_series(by_year: pd.DataFrame) -> str:
+    """The previous and the current net total per year (:func:`compiler.recalculations.year_totals`)."""
+    tot = by_year / 1000
     fig, ax = plt.subplots(figsize=(6.2, 2.4))
     ax.plot(tot.index, tot["previous_co2eq_t"], color="#9b6b43", linestyle="--", linewidth=1.4, label="previous submission")
     ax.plot(tot.index, tot["current_co2eq_t"], color="#2f4858", linewidth=1.6, label="this submission",

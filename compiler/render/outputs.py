@@ -34,8 +34,10 @@ KNOWN_OUTPUTS = frozenset({
 
 
 def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = False,
-                  parallel: bool | None = None) -> Path:
+                  parallel: bool | None = None, progress=None) -> Path:
     """Every output of a compile, written atomically into ``out_dir``.
+
+    ``progress`` (see :mod:`compiler.progress`) is told as the workbook and the report begin.
 
     ``parallel`` (default: where the system can fork and no other Python thread runs) lays out the
     report in a forked process on the second core while this one writes the tables; the files are
@@ -43,14 +45,11 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
     """
 
     def fill(tmp: Path) -> None:
-        from ..methods_chapter import chapter, write_chapter
+        from ..methods_chapter import write_chapter
         from ..schema import EXPORT_COLUMNS
-        from ..reporting_tables import reporting_tables
         from .submission import write_csvs
 
-        reporting_tables(result)  # made once here, before the report process is forked
-        chapter(result)
-        job = ReportJob.start(result, tmp) if report and not archive and _can_fork(parallel) else None
+        job = ReportJob.start(result, tmp, progress) if report and not archive and _can_fork(parallel) else None
         try:
             write_csv(result.emissions, tmp / "emissions.csv", EXPORT_COLUMNS)
             write_factors_csv(result.factors_used, tmp / "factors.csv")
@@ -59,24 +58,29 @@ def write_outputs(result, out_dir: Path, report: bool = True, archive: bool = Fa
             package["resources"].extend(write_csvs(result, tmp))  # the submission tables
             write_chapter(result, tmp)  # methods_chapter.md and .docx
             write_datapackage(package, tmp / "datapackage.json")
-            write_workbook(result, tmp / "inventory.xlsx")
+            write_workbook(result, tmp / "inventory.xlsx", progress)
         except BaseException:
             if job is not None:
                 job.cancel()
             raise
+        document = None  # the report's layout, which the archive reuses
         if job is not None:
             job.finish()
-        elif report or archive:
+        elif archive:
+            from .report import layout_report
+
+            document, _ = layout_report(result, tmp, progress)
+        elif report:
             from .report import write_report
 
-            write_report(result, tmp)
+            write_report(result, tmp, progress)
         files = sorted(p.name for p in tmp.iterdir())
         (tmp / "manifest.json").write_text(json.dumps(manifest(result, tmp, files), indent=2) + "\n",
                                            encoding="utf-8")
         if archive:  # after the manifest, which it carries inside
             from .report import write_archive
 
-            write_archive(result, tmp)
+            write_archive(result, tmp, document, progress)
 
     return atomic_folder(Path(out_dir), fill, inputs=input_files(result.settings))
 
@@ -99,7 +103,7 @@ class ReportJob:
         self.process, self.connection, self.progress = process, connection, progress
 
     @classmethod
-    def start(cls, result, folder: Path) -> "ReportJob":
+    def start(cls, result, folder: Path, progress=None) -> "ReportJob":
         context = multiprocessing.get_context("fork")
         # Buffered text would be written twice, once by the child: flushed here, not left to multiprocessing.
         sys.stdout.flush()
@@ -109,7 +113,7 @@ class ReportJob:
                                   daemon=True)
         process.start()
         send.close()
-        return cls(process, receive, getattr(result, "_progress", None))
+        return cls(process, receive, progress)
 
     def finish(self) -> None:
         """Wait for the report; raise what the child raised (or say how it died).
@@ -185,9 +189,8 @@ def _report_child(result, folder: Path, connection, parent: int | None = None) -
 
     if parent is not None:
         _end_with_parent(parent)
-    result._progress = None  # progress is shown by the parent only
     try:
-        write_report(result, folder)
+        write_report(result, folder)  # without progress: the parent shows it
         connection.send(("ok", None, ""))
     except BaseException as exc:  # sent to the parent, which raises it there with this traceback as its cause
         text = "".join(traceback.format_exception(exc))

@@ -1,8 +1,10 @@
 """report.html and report.pdf from report_templates/ (Jinja2, autoescaped; WeasyPrint for the PDF).
 
-Every number in the report is computed here from the result tables; the
-templates format and place them, and never hold a factor or a total of their
-own. WeasyPrint may fetch only files inside the template folder: any other
+Every total, share and series the report shows is computed once by the stage that
+owns it (``result.aggregates``, ``result.reporting_tables``, ``result.methods_chapter``,
+the analyses' results; see DEVELOPERS.md, "Which output shows which aggregate");
+this module picks and formats them, and the templates place them and never hold a
+factor or a total of their own. WeasyPrint may fetch only files inside the template folder: any other
 URL or path, including one that a user's text might carry, is refused.
 """
 
@@ -19,7 +21,6 @@ import pandas as pd
 from jinja2 import Environment, FileSystemLoader, select_autoescape
 
 from ..categories import NOTATION_KEYS
-from ..offsite_peat import OFFSITE_PATHWAY
 from ..factors import unchecked_factors
 from ..row_model import ROW_MODELS
 from ..resources import resource_dir
@@ -135,10 +136,11 @@ def _fmt(value, digits: int = 1) -> str:
     return f"{value:,.{digits}f}".replace("-", "\u2212")
 
 
-def _pct(new, old) -> str:
-    if not old:
+def _pct(change: float | None) -> str:
+    """A relative change (a fraction, :meth:`Aggregates.change`) as signed percent; blank without one."""
+    if change is None:
         return ""
-    return f"{(new - old) / abs(old) * 100:+.1f} %".replace("-", "\u2212")
+    return f"{change * 100:+.1f} %".replace("-", "\u2212")
 
 
 def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
@@ -150,28 +152,30 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
     years = _years_shown(base, latest)
     ends = sorted({base, latest})  # one column when the inventory has one year
     gwp = result.gwp
+    agg = result.aggregates
 
-    totals = cats[cats["notation_key"] == ""].groupby("year")["co2eq_t"].sum() / 1000
-    total_base, total_latest = float(totals.get(base, 0.0)), float(totals.get(latest, 0.0))
-
+    # Totals, gases and categories from the aggregate stage (t CO2-eq, shown in kt).
+    total_base, total_latest = agg.total_base_t / 1000, agg.total_latest_t / 1000
+    total_change = agg.change(agg.total_base_t, agg.total_latest_t)
     by_gas = []
-    for gas in ("CO2", "CH4", "N2O"):
-        g = cats[(cats["gas"] == gas) & (cats["notation_key"] == "")].groupby("year")["co2eq_t"].sum() / 1000
-        b, l = float(g.get(base, 0.0)), float(g.get(latest, 0.0))
-        by_gas.append({"gas": gas, "base": _fmt(b), "latest": _fmt(l), "change": _pct(l, b), "raw_latest": l})
-    cat_sum = (cats[cats["notation_key"] == ""].groupby(["category_code", "category_name", "year"])["co2eq_t"]
-               .sum().unstack("year").reindex(columns=ends).fillna(0.0) / 1000)
-    by_category = [{"code": c, "name": n, "base": _fmt(r[base]), "latest": _fmt(r[latest]),
-                    "change": _pct(r[latest], r[base]), "raw_latest": r[latest], "raw_change": r[latest] - r[base]}
-                   for (c, n), r in cat_sum.iterrows() if r[base] or r[latest]]
+    for gas in agg.gas_co2eq_t.columns:
+        b, l = float(agg.gas_co2eq_t.at[base, gas]), float(agg.gas_co2eq_t.at[latest, gas])
+        by_gas.append({"gas": gas, "base": _fmt(b / 1000), "latest": _fmt(l / 1000), "change": _pct(agg.change(b, l)),
+                       "raw_latest": l / 1000})
+    categories = agg.category_co2eq_t
+    change_t = agg.category_change_co2eq_t
+    by_category = [{"code": c, "name": n, "base": _fmt(r[base] / 1000), "latest": _fmt(r[latest] / 1000),
+                    "change": _pct(agg.change(r[base], r[latest])), "raw_latest": r[latest] / 1000,
+                    "raw_change": change_t[(c, n)] / 1000, "share": agg.gross_share((c, n), latest)}
+                   for (c, n), r in categories.iterrows() if r[base] or r[latest]]
 
     # Regions from the aggregate stage: the largest one by one, beyond REGIONS_SHOWN the rest on one line.
     top, rest, n_rest = result.aggregates.largest_regions()
     by_region = [{"region": name, "base": _fmt(r[base] / 1000), "latest": _fmt(r[latest] / 1000),
-                  "change": _pct(r[latest], r[base])} for name, r in top.iterrows()]
+                  "change": _pct(agg.change(r[base], r[latest]))} for name, r in top.iterrows()]
     if rest is not None:
         by_region.append({"region": f"{n_rest:,} other regions (each in the workbook)", "base": _fmt(rest[base] / 1000),
-                          "latest": _fmt(rest[latest] / 1000), "change": _pct(rest[latest], rest[base])})
+                          "latest": _fmt(rest[latest] / 1000), "change": _pct(agg.change(rest[base], rest[latest]))})
     unverified_used = unchecked_factors(result.factors_used)
     factor_sources = _register(result)
 
@@ -181,8 +185,7 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
     params_by_cell = est[est["parameter_id"] != ""].groupby(["category_code", "gas"])["parameter_id"].agg(
         lambda x: sorted(i for i in set(x) if not i.startswith("activity:")))  # values of the input data, not factors
     # The off-site CO2 of extracted peat, shown on its own line under its category (3.B.4.a.i).
-    offsite = est[(est["pathway"] == OFFSITE_PATHWAY).to_numpy(dtype=bool)]
-    offsite_by_cell = offsite.groupby(["category_code", "gas", "year"])["co2eq_t"].sum()
+    offsite_by_cell = agg.offsite_co2eq_t
     pathways_by_cell = est.groupby(["category_code", "gas"])["pathway"].agg(lambda x: sorted(set(x)))
     for (code, name, gas), g in cats.groupby(["category_code", "category_name", "gas"], sort=False):
         by_year = g.set_index("year")
@@ -261,13 +264,14 @@ def build_context(result, chart_svgs: dict[str, str] | None = None) -> dict:
             if len(related) > 3:
                 shown.append(f"and {len(related) - 3} more findings on {r['category_code']} (see Input findings)")
             review.append({**r, "related": shown})
-    paragraph = _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas, result.activity)
+    paragraph = _trend_paragraph(total_base, total_latest, total_change, base, latest, by_category, by_gas,
+                                 agg.area_ha)
     return {
         "s": s, "result": result, "base": base, "latest": latest, "years": years, "ends": ends,
         "single_year": base == latest,
         "version": result.version, "compile_date": result.compile_date,
         "hashes": sorted(result.input_hashes.items()),
-        "total_base": _fmt(total_base), "total_latest": _fmt(total_latest), "total_change": _pct(total_latest, total_base),
+        "total_base": _fmt(total_base), "total_latest": _fmt(total_latest), "total_change": _pct(total_change),
         "by_gas": by_gas, "by_category": by_category, "by_region": by_region, "paragraph": paragraph,
         "cautions": CAUTIONS, "unverified": sorted(unverified_used["factor_id"]),
         "unchecked_table": _unchecked_table(unverified_used),
@@ -429,11 +433,9 @@ def _uncertainty_context(result) -> dict | None:
             if not mt.empty:
                 mt = mt.iloc[0]
                 out["trend"]["mc"] = f"{mt['p2_5_pct']:+.1f} % to {mt['p97_5_pct']:+.1f} %"
-        cells = a1.cells[a1.cells["year"] == s.last_year].copy()
-        cells["var"] = (cells["half_width_t"] * cells["co2eq_t"] / cells["emission_t"].where(cells["emission_t"] != 0)).fillna(0) ** 2
-        top = cells.sort_values("var", ascending=False).head(3)
-        share = top["var"] / cells["var"].sum() * 100 if cells["var"].sum() else top["var"] * 0
-        out["drivers"] = [f"{r['category_code']} {r['gas']} ({p:.0f} % of the variance)" for (_, r), p in zip(top.iterrows(), share)]
+        top = a1.variance_shares.head(3)  # the latest year's largest parts of the variance (uncertainty stage)
+        out["drivers"] = [f"{r['category_code']} {r['gas']} ({r['variance_share_pct']:.0f} % of the variance)"
+                          for r in top.to_dict("records")]
     if mc is not None:
         rows = mc.summary[(mc.summary["year"] == s.last_year) & (mc.summary["category_code"] != "total")]
         out["rows"] = [{"code": r["category_code"], "gas": r["gas"], "unit": r["unit"], "estimate": _fmt(r["estimate"], 1),
@@ -473,21 +475,18 @@ def _references(result) -> list[tuple[str, str]]:
     return [(sid, cit) for sid, cit in zip(src["source_id"], src["citation"]) if sid in used]
 
 
-def _trend_paragraph(total_base, total_latest, base, latest, by_category, by_gas, activity) -> str:
+def _trend_paragraph(total_base, total_latest, change, base, latest, by_category, by_gas, area) -> str:
     """A short paragraph written from the numbers: level, change, largest contributors and changes."""
     if not by_category:
         return "No emissions or removals were estimated."
     direction = "rose" if total_latest > total_base else "fell" if total_latest < total_base else "stayed"
-    change = _pct(total_latest, total_base)
+    change = _pct(change)
     top = max(by_category, key=lambda r: abs(r["raw_latest"]))
-    share = abs(top["raw_latest"]) / sum(abs(r["raw_latest"]) for r in by_category) * 100
+    share = top["share"] * 100
     mover = max(by_category, key=lambda r: abs(r["raw_change"]))
     gas_top = max(by_gas, key=lambda r: abs(r["raw_latest"]))
-    area = activity.groupby(["year", "soil_status"])["area_ha"].sum().unstack(fill_value=0.0)
-    rewet_b = float(area.loc[base].get("rewetted", 0.0)) if base in area.index else 0.0
-    rewet_l = float(area.loc[latest].get("rewetted", 0.0)) if latest in area.index else 0.0
-    drained_b = float(area.loc[base].get("drained", 0.0)) if base in area.index else 0.0
-    drained_l = float(area.loc[latest].get("drained", 0.0)) if latest in area.index else 0.0
+    rewet_b, rewet_l = float(area.at[base, "rewetted"]), float(area.at[latest, "rewetted"])
+    drained_b, drained_l = float(area.at[base, "drained"]), float(area.at[latest, "drained"])
     if base == latest:
         return (f"Net emissions of organic soils were {_fmt(total_latest)} kt CO2-eq in {latest}. "
                 f"The largest category is {top['code']} {top['name']} ({_fmt(top['raw_latest'])} kt CO2-eq, "
@@ -543,31 +542,38 @@ def render_html(result, chart_svgs: dict[str, str] | None = None) -> str:
     return env.get_template("report.html.j2").render(**context, css=css)
 
 
-def write_report(result, folder: Path) -> RestrictedFetcher:
+def write_report(result, folder: Path, progress=None) -> RestrictedFetcher:
     """Write report.html and report.pdf; return the fetcher (its ``refused`` list names what was refused)."""
+    return layout_report(result, folder, progress)[1]
+
+
+def layout_report(result, folder: Path, progress=None):
+    """Write report.html and report.pdf; return the laid-out document (:func:`write_archive` reuses it: the
+    layout is done once) and the fetcher."""
     from weasyprint import HTML
 
     from ..progress import stage
 
-    stage(getattr(result, "_progress", None), "laying out the report")
+    stage(progress, "laying out the report")
     html = render_html(result)
     (folder / "report.html").write_text(html, encoding="utf-8")
     fetcher = RestrictedFetcher(resource_dir("report_templates"))
     document = HTML(string=html, base_url=str(resource_dir("report_templates")) + "/", url_fetcher=fetcher).render()
     with _fixed_font_dates(result):
         document.write_pdf(folder / "report.pdf", pdf_identifier=_identifier(result))
-    result._report_document = document  # reused by write_archive: the layout is done once
-    return fetcher
+    return document, fetcher
 
 
-def write_archive(result, folder: Path) -> None:
-    """report-archive.pdf: PDF/A-3b carrying emissions.csv, datapackage.json and manifest.json as attachments."""
+def write_archive(result, folder: Path, document=None, progress=None) -> None:
+    """report-archive.pdf: PDF/A-3b carrying emissions.csv, datapackage.json and manifest.json as attachments.
+
+    ``document`` is the report's layout from :func:`layout_report`; without it, report.html is laid out again.
+    """
     from weasyprint import HTML, Attachment
 
     from ..progress import stage
 
-    stage(getattr(result, "_progress", None), "writing the PDF/A-3b archive")
-    document = getattr(result, "_report_document", None)
+    stage(progress, "writing the PDF/A-3b archive")
     if document is None:
         html = (folder / "report.html").read_text(encoding="utf-8")
         fetcher = RestrictedFetcher(resource_dir("report_templates"))

@@ -12,7 +12,7 @@ from openpyxl import Workbook
 
 from ..resources import resource_dir
 from . import charts
-from ..schema import FINDING_COLUMNS
+from ..errors import findings_table
 from .outputs import atomic_folder, input_files
 from .report import RestrictedFetcher
 from .workbook import FORMATS, finish_workbook, sheet_records, write_sheet
@@ -45,8 +45,7 @@ def _lines(frame: pd.DataFrame, column: str, ylabel: str, title: str, scale: flo
 
 def scenario_charts(outcome) -> dict[str, str]:
     climate = outcome.climate
-    areas = (outcome.areas[outcome.areas["soil_status"] == "rewetted"].groupby(["scenario", "year"], sort=False)
-             ["area_ha"].sum().reset_index())
+    areas = outcome.rewetted_area
     return {
         "emissions": _lines(climate, "co2eq_t", "kt CO2-eq per year", "Emissions by scenario (GWP100)", 1e-3),
         "forcing": _lines(climate, "forcing_w_m2", "nW m-2", "Radiative forcing from the organic soils", 1e9),
@@ -61,11 +60,9 @@ def write_scenario_outputs(result, outcome, out_dir: Path, report: bool = True, 
                            ) -> Path:
     def fill(tmp: Path) -> None:
         outcome.climate.to_csv(tmp / "scenario_climate.csv", index=False, lineterminator="\n")
-        em = outcome.emissions.groupby(["scenario", "year", "region", "soil_status", "pathway", "gas"], sort=False,
-                                       as_index=False)[["emission_t", "co2eq_t"]].sum(min_count=1)
+        em = outcome.emissions  # already one row per scenario, year, region, soil status, pathway and gas
         em.to_csv(tmp / "scenario_emissions.csv", index=False, lineterminator="\n")
-        areas = outcome.areas.groupby(["scenario", "year", "region", "land_use", "soil_status"], sort=False,
-                                      as_index=False)["area_ha"].sum()
+        areas = outcome.area_totals
         areas.to_csv(tmp / "scenario_areas.csv", index=False, lineterminator="\n")
         _workbook(result, outcome, em, areas, tmp / "scenarios.xlsx")
         if report:
@@ -87,8 +84,7 @@ def _workbook(result, outcome, em, areas, path: Path) -> None:
         fmt = {c: "0.000E+00" if ("forcing" in c or "temperature" in c or "agwp" in c or "agtp" in c) else FORMATS["t"]
                for c in cols if pd.api.types.is_float_dtype(frame[c])}
         write_sheet(wb, title, cols, sheet_records(frame, cols), fmt, notes=notes if title == "summary" else ())
-    findings = pd.DataFrame([f.as_record() for f in outcome.findings] or None,
-                            columns=FINDING_COLUMNS)
+    findings = findings_table(outcome.findings)
     write_sheet(wb, "findings", list(findings.columns), sheet_records(findings, list(findings.columns)), widths={"message": 80})
     stamp = _dt.datetime.fromisoformat(result.compile_date + "T00:00:00")
     wb.properties.created = stamp

@@ -1,7 +1,7 @@
 """The submission tables as workbook sheets, CSV files with their schemas, and a report section.
 
-The numbers come from :func:`compiler.reporting_tables.reporting_tables`; this
-module formats them and sums nothing.
+The numbers come from ``result.reporting_tables`` (made once by
+:func:`compiler.reporting_tables.reporting_tables`); this module formats them and sums nothing.
 """
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from ..categories import NOTATION_KEYS
-from ..reporting_tables import ORGANIC_SOILS_COLUMNS, ORGANIC_SOILS_FIELDS, reporting_tables
+from ..reporting_tables import ORGANIC_SOILS_COLUMNS, ORGANIC_SOILS_FIELDS
 
 # file name -> (resource name, title); written beside emissions.csv and described in datapackage.json
 CSV_FILES = {
@@ -45,7 +45,7 @@ def add_sheets(wb, result) -> None:
     """The three submission sheets, appended after the workbook's other sheets."""
     from .workbook import FORMATS, sheet_records, write_sheet
 
-    tables = reporting_tables(result)
+    tables = result.reporting_tables
     o = tables.organic_soils
     fmt = {c: "0.000####" for c in o.columns if c.startswith("ief_")}
     fmt.update({"area_kha": "#,##0.000", "co2_soil_kt": FORMATS["kt"], "co2_fire_kt": FORMATS["kt"],
@@ -65,7 +65,7 @@ def add_sheets(wb, result) -> None:
 
 def write_csvs(result, folder: Path) -> list[dict]:
     """The submission CSV files in ``folder``; returns their datapackage resources."""
-    tables = reporting_tables(result)
+    tables = result.reporting_tables
     frames = {"organic_soils.csv": tables.organic_soils[ORGANIC_SOILS_COLUMNS],
               "timeseries_gases.csv": tables.gas_series,
               "timeseries_categories.csv": tables.category_series}
@@ -117,7 +117,7 @@ def _num(value, digits: int = 3) -> str:
 
 def report_context(result) -> dict:
     """What the report's submission section shows: the latest year's organic-soils table and the gas series."""
-    tables = reporting_tables(result)
+    tables = result.reporting_tables
     o = tables.organic_soils
     latest = o[o["year"] == tables.latest_year]
     soils = [{
@@ -133,7 +133,7 @@ def report_context(result) -> dict:
     shown = sorted({years[0], *years[::5], years[-1]}, key=years.index)
     gases = [{"quantity": r["quantity"], "unit": r["unit"], "values": [_num(r[y], 2) for y in shown],
               "trend": _num(r["trend_pct"], 1)} for r in g.to_dict("records")]
-    from ..methods_chapter import chapter, to_html
+    from ..methods_chapter import to_html
 
-    return {"methods": to_html(chapter(result)), "latest": tables.latest_year, "soils": soils, "gas_years": shown, "gases": gases,
+    return {"methods": to_html(result.methods_chapter), "latest": tables.latest_year, "soils": soils, "gas_years": shown, "gases": gases,
             "files": list(CSV_FILES), "notation_keys": NOTATION_KEYS}

@@ -89,10 +89,10 @@ def sheet_records(frame: pd.DataFrame, columns):
     return data.itertuples(index=False, name=None)
 
 
-def write_workbook(result, path: Path) -> None:
+def write_workbook(result, path: Path, progress=None) -> None:
     from ..progress import stage
 
-    stage(getattr(result, "_progress", None), "writing the workbook")
+    stage(progress, "writing the workbook")
     s = result.settings
     wb = Workbook(write_only=True)
     agg = result.aggregates
@@ -158,7 +158,8 @@ def write_workbook(result, path: Path) -> None:
     # trace: every category-gas cell of the base and latest year, linked to its strata and factor rows
     strata_row = pd.Series(np.arange(len(em)) + 2, index=em.index)  # row numbers in the strata sheet
     est = em[(em["notation_key"] == "") & em["year"].isin([base, latest])]
-    cell_total = est.groupby(["category_code", "gas", "year"])["emission_t"].transform("sum")
+    cell = ["category_code", "gas", "year"]  # each row's cell total is the reporting cell's figure
+    cell_total = cats.set_index(cell)["emission_t"].reindex(pd.MultiIndex.from_frame(est[cell])).to_numpy()
     factor_rows = {fid: i + 3 for i, fid in enumerate(result.factors_used["factor_id"])}  # factors sheet: note + header
     trace = pd.DataFrame({
         "category_code": est["category_code"], "gas": est["gas"], "year": est["year"], "cell_total_t": cell_total,

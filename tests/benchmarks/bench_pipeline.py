@@ -242,7 +242,10 @@ def run_size(n_rows: int, workdir: Path, repeat: int, iterations: int, report: b
         try:
             a1 = stage("approach1", lambda: U.approach1(result))
             mc = stage("mc", lambda: U.monte_carlo(result, iterations=iterations))
-            result.uncertainty = U.UncertaintyResult(approach="both", approach1=a1, monte_carlo=mc)
+            import dataclasses  # a compiled result is read-only: a copy carries the analyses
+
+            result = dataclasses.replace(result, uncertainty=U.UncertaintyResult(approach="both", approach1=a1,
+                                                                                 monte_carlo=mc))
             del mc
         except Skipped:
             pass
