@@ -281,12 +281,50 @@ SPOOL_BYTES = 64 * 1024 * 1024  # a streamed sheet is kept in memory up to this 
 STREAM_COMPRESSION = 3
 
 
-def _column_text(values: pd.Series) -> tuple[np.ndarray, bool]:
-    """Cell text of one column (object array, "" for an absent cell) and whether it is numeric.
+class SharedStrings:
+    """The workbook's shared string table (xl/sharedStrings.xml) of the streamed sheets: each distinct
+    text once, in the order of first use, cells refer to it by index (``t="s"``). Texts are kept as
+    written in the XML (escaped, illegal control characters removed)."""
 
-    The same text as the column-wise expressions it replaces: ``repr`` of the float (integer
-    columns without ".0"), XML-escaped text with the illegal control characters removed. Computed
-    once per distinct value (by bit pattern for numbers, so -0.0 stays "-0.0").
+    def __init__(self) -> None:
+        self.index: dict[str, int] = {}
+        self.count = 0  # cells that refer to the table
+
+    def ids(self, texts) -> list[int]:
+        index = self.index
+        out = []
+        for t in texts:
+            i = index.get(t)
+            if i is None:
+                i = index[t] = len(index)
+            out.append(i)
+        return out
+
+    def xml(self) -> bytes:
+        body = "".join(f'<si><t xml:space="preserve">{t}</t></si>' for t in self.index)
+        return (f'<sst xmlns="{_MAIN_NS}" count="{self.count}" uniqueCount="{len(self.index)}">{body}</sst>'
+                ).encode("utf-8")
+
+
+_MAIN_NS = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
+_SST_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sharedStrings+xml"
+_SST_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships/sharedStrings"
+
+
+def _escape(text) -> str:
+    t = str(text)
+    for a, b in _XML_ESCAPES:
+        t = t.replace(a, b)
+    return re.sub(_XML_ILLEGAL, "", t)
+
+
+def _column_text(values: pd.Series) -> tuple[np.ndarray, list[str], np.ndarray, bool]:
+    """Cell text of one column: ``codes`` (one per row, -1 for an absent cell), the distinct
+    ``texts`` they point to, a mask of the rows that have a cell, and whether the column is numeric.
+
+    Numbers: ``repr`` of the float (integer columns without ".0"), computed once per distinct value
+    (by bit pattern, so -0.0 stays "-0.0"); text: XML-escaped, illegal control characters removed.
+    A missing or non-finite number, a missing or empty text is an absent cell.
     """
     if pd.api.types.is_numeric_dtype(values):
         floats = values.astype(float).to_numpy()
@@ -295,45 +333,55 @@ def _column_text(values: pd.Series) -> tuple[np.ndarray, bool]:
         texts = [repr(v) for v in uniques.view(np.float64).tolist()]
         if pd.api.types.is_integer_dtype(values):
             texts = [t[:-2] if t.endswith(".0") else t for t in texts]
-        out = np.array(texts, dtype=object)[codes] if len(texts) else np.empty(len(values), dtype=object)
-        out[~finite] = ""
-        return out, True
-    codes, uniques = pd.factorize(values)  # a missing value -> -1 -> the appended "" (an absent cell)
-    cleaned = []
-    for t in uniques:
-        t = str(t)
-        for a, b in _XML_ESCAPES:
-            t = t.replace(a, b)
-        cleaned.append(re.sub(_XML_ILLEGAL, "", t))
-    return np.array([*cleaned, ""], dtype=object)[codes], False
+        return codes, texts, finite, True
+    codes, uniques = pd.factorize(values)  # a missing value -> -1
+    texts = [_escape(t) for t in uniques]
+    present = codes >= 0
+    empty = [i for i, t in enumerate(texts) if not t]
+    if empty:
+        present &= ~np.isin(codes, empty)
+    return codes, texts, present, False
 
 
 def _rows_xml_pieces(frame: pd.DataFrame, first_row: int, rows_per_piece: int = ROWS_PER_PIECE,
-                     styles: list | None = None):
+                     styles: list | None = None, strings: SharedStrings | None = None):
     """Rows of a sheet as SpreadsheetML, ``rows_per_piece`` rows at a time (UTF-8 bytes).
 
-    Text is written as inline strings (never formulas), numbers as numbers (with the column's style
-    id where ``styles`` gives one), blanks as absent cells; the concatenated pieces are the bytes the
-    column-wise version produced in one string.
+    Text goes into the shared string table ``strings`` (``t="s"`` cells, never formulas), numbers
+    are written as numbers (with the column's style id where ``styles`` gives one), blanks as absent
+    cells. The pieces of a row (tags, row number, each distinct value's cell text) are laid out in an
+    object array, row by row, and joined once: no string operation per cell. The concatenated pieces
+    do not depend on ``rows_per_piece``.
     """
     from openpyxl.utils import get_column_letter
 
-    letters = [get_column_letter(j + 1) for j in range(len(frame.columns))]
-    styles = styles or [None] * len(letters)
+    strings = strings if strings is not None else SharedStrings()
+    prefixes = [f'<c r="{get_column_letter(j + 1)}' for j in range(len(frame.columns))]
+    styles = styles or [None] * len(prefixes)
+    width = 4 + 3 * len(prefixes)
     for a in range(0, len(frame), rows_per_piece):
         part = frame.iloc[a:a + rows_per_piece]
-        numbers = [str(i) for i in range(first_row + a, first_row + a + len(part))]
-        columns = [[f'<row r="{n}">' for n in numbers]]
-        for letter, col, style in zip(letters, part.columns, styles):
-            text, numeric = _column_text(part[col])
+        numbers = np.array([str(i) for i in range(first_row + a, first_row + a + len(part))], dtype=object)
+        cells = np.empty((len(part), width), dtype=object)
+        cells[:, 0] = '<row r="'
+        cells[:, 1] = numbers
+        cells[:, 2] = '">'
+        for j, (col, style) in enumerate(zip(part.columns, styles)):
+            codes, texts, present, numeric = _column_text(part[col])
             if numeric:
                 attr = f' s="{style}"' if style else ""
-                cells = [f'<c r="{letter}{n}"{attr}><v>{v}</v></c>' if v else "" for n, v in zip(numbers, text)]
+                tails = [f'"{attr}><v>{t}</v></c>' for t in texts]
             else:
-                cells = [f'<c r="{letter}{n}" t="inlineStr"><is><t xml:space="preserve">{v}</t></is></c>' if v else ""
-                         for n, v in zip(numbers, text)]
-            columns.append(cells)
-        yield ("</row>".join("".join(cells) for cells in zip(*columns)) + "</row>").encode("utf-8")
+                tails = [f'" t="s"><v>{i}</v></c>' for i in strings.ids(texts)]
+                strings.count += int(present.sum())
+            k = 3 + 3 * j
+            cells[:, k] = prefixes[j]
+            cells[:, k + 1] = numbers
+            cells[:, k + 2] = np.array([*tails, ""], dtype=object)[codes]
+            if not present.all():
+                cells[~present, k:k + 3] = ""
+        cells[:, -1] = "</row>"
+        yield "".join(cells.ravel().tolist()).encode("utf-8")
 
 
 def _table(wb, title, frame: pd.DataFrame, notes=(), widths=None):
@@ -400,6 +448,8 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
 
     src = zipfile.ZipFile(io.BytesIO(data))
     iso = stamp.strftime("%Y-%m-%dT%H:%M:%SZ")
+    strings = SharedStrings()  # the text of the streamed sheets, written after the sheets (before the styles)
+    shared = False
     with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as dst, ThreadPoolExecutor(1) as writer:
         pending = None  # the entry being written by the second thread (the executor waits for it on exit)
 
@@ -421,6 +471,16 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
                     content = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)",
                                      rb"\g<1>" + iso.encode() + rb"\g<2>", content)
                 wait()
+                if info.filename == "xl/styles.xml" and strings.index:
+                    sst = zipfile.ZipInfo("xl/sharedStrings.xml", date_time=stamp.timetuple()[:6])
+                    sst.compress_type, sst.external_attr = zipfile.ZIP_DEFLATED, 0o600 << 16
+                    dst.writestr(sst, strings.xml())
+                    shared = True
+                elif shared and info.filename == "xl/_rels/workbook.xml.rels":
+                    content = _add_relationship(content)
+                elif shared and info.filename == "[Content_Types].xml":
+                    content = content.replace(b"</Types>", f'<Override PartName="/xl/sharedStrings.xml" '
+                                                           f'ContentType="{_SST_TYPE}"/></Types>'.encode())
                 dst.writestr(entry, content)
                 continue
             stream = bulk[int(sheet.group(1))]
@@ -430,7 +490,8 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
                 spool.write(content[:split])
                 for a in range(stream.first, stream.stop, ROWS_PER_PIECE):
                     part = stream.frame.iloc[a:min(a + ROWS_PER_PIECE, stream.stop)][stream.columns]
-                    for piece in _rows_xml_pieces(part, stream.top_row + a - stream.first, styles=stream.styles):
+                    for piece in _rows_xml_pieces(part, stream.top_row + a - stream.first, styles=stream.styles,
+                                                  strings=strings):
                         spool.write(piece)
                 spool.write(content[split:])
                 entry.file_size = spool.tell()
@@ -441,6 +502,13 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
                 raise
             pending = writer.submit(_deflate_spool, dst, entry, spool)
         wait()
+
+
+def _add_relationship(rels: bytes) -> bytes:
+    """The workbook's relationships with the shared string table added (the next free ``rId``)."""
+    taken = [int(n) for n in re.findall(rb'Id="rId(\d+)"', rels)]
+    rel = f'<Relationship Type="{_SST_REL}" Target="sharedStrings.xml" Id="rId{max(taken, default=0) + 1}"/>'
+    return rels.replace(b"</Relationships>", rel.encode() + b"</Relationships>")
 
 
 def _deflate_spool(dst: zipfile.ZipFile, entry: zipfile.ZipInfo, spool) -> None:
