@@ -59,14 +59,58 @@ def _header(ws, names):
     ws.append(row)
 
 
-def write_sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), freeze="A2"):
-    """A table sheet: optional note lines, a header row, data rows."""
+NUMBER_WIDTH_LIMIT = 30  # a numeric column is widened to its longest formatted number, up to this width
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, (bool, np.bool_))
+
+
+def number_width(values, number_format: str | None) -> int:
+    """Characters the longest of ``values`` (numbers; NaN and infinities are blank cells) takes when a
+    spreadsheet program shows it in ``number_format`` (None: General): an upper bound, from the
+    largest magnitude, a minus sign if any value is negative, and the format's thousands separators,
+    decimals (optional ``#`` decimals counted in full), percent sign or exponent. 0 if none is finite."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if not v.size:
+        return 0
+    big = float(np.abs(v).max())
+    sign = int(bool((v < 0).any()))
+    fmt = number_format or "General"
+    if fmt == "General":  # at most 11 characters; decimals are rounded away to fit, the integer part is not
+        integer = len(f"{big:.0f}")
+        return sign + (integer if (v == np.round(v)).all() else max(integer, min(11, integer + 7)))
+    decimals = len(re.sub(r"[^0#]", "", fmt.split(".", 1)[1].split("E")[0])) if "." in fmt else 0
+    if "E" in fmt:
+        return sign + len(f"{big:.{decimals}E}")
+    if "%" in fmt:
+        return sign + len(f"{big * 100:{',' if ',' in fmt else ''}.{decimals}f}") + 1
+    return sign + len(f"{big:{',' if ',' in fmt else ''}.{decimals}f}")
+
+
+def _column_width(col, numbers, formats: dict, widths: dict) -> float:
+    """The width of a column: the given one (or one from its header), widened so that its longest
+    formatted number fits (bounded by NUMBER_WIDTH_LIMIT): a spreadsheet shows ### where it does not."""
+    width = widths.get(col, max(10, min(48, len(str(col)) + 4)))
+    need = number_width(numbers, formats.get(col)) if len(numbers) else 0
+    return max(width, min(NUMBER_WIDTH_LIMIT, need + 2)) if need else width
+
+
+def write_sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), freeze="A2", data=None):
+    """A table sheet: optional note lines, a header row, data rows. ``data``: the frame whose rows are
+    streamed into the sheet later (rows is then empty), read here for the column widths."""
     ws = wb.create_sheet(title)
     formats = formats or {}
     widths = widths or {}
+    rows = list(rows)
     for i, col in enumerate(columns):
-        letter = _letter(i)
-        ws.column_dimensions[letter].width = widths.get(col, max(10, min(48, len(str(col)) + 4)))
+        if data is not None:
+            numbers = (data[col].to_numpy(dtype=float, na_value=np.nan)
+                       if pd.api.types.is_numeric_dtype(data[col]) else [])
+        else:
+            numbers = [v for v in (r[i] for r in rows) if _is_number(v)]
+        ws.column_dimensions[_letter(i)].width = _column_width(col, numbers, formats, widths)
     if notes:
         freeze = f"{freeze[0]}{len(notes) + 2}"
     ws.freeze_panes = freeze  # must precede the first row in write-only mode
@@ -147,13 +191,16 @@ def write_workbook(result, path: Path) -> None:
     chunk = SHEET_ROW_LIMIT - 1
     fmt = {"area_ha": FORMATS["ha"], "area_basis_ha": FORMATS["ha"], "emission_t": FORMATS["t"],
            "co2eq_t": FORMATS["t"], "emission_basis_t": FORMATS["t"], "factor_value": FORMATS["factor"],
-           "parameter_value": FORMATS["factor"], "year": FORMATS["int"], "input_row": FORMATS["int"]}
+           "parameter_value": FORMATS["factor"], "conversion": FORMATS["factor"], "year": FORMATS["int"],
+           "input_row": FORMATS["int"]}
     parts = max(1, int(np.ceil(len(em) / chunk)))
     bulk: dict[int, _Stream] = {}  # sheet number in the file -> its data rows, written as XML by finish_workbook
     for i in range(parts):
         title = "strata" if parts == 1 else f"strata_{i + 1}"
-        write_sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30})
-        bulk[len(wb.worksheets)] = _Stream(em, EXPORT_COLUMNS, i * chunk, min((i + 1) * chunk, len(em)))
+        ws = write_sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30},
+                         data=em.iloc[i * chunk:(i + 1) * chunk])
+        bulk[len(wb.worksheets)] = _Stream(em, EXPORT_COLUMNS, i * chunk, min((i + 1) * chunk, len(em)),
+                                           styles=_style_ids(ws, EXPORT_COLUMNS, fmt))
 
     # trace: every category-gas cell of the base and latest year, linked to its strata and factor rows
     strata_row = pd.Series(np.arange(len(em)) + 2, index=em.index)  # row numbers in the strata sheet
@@ -172,11 +219,12 @@ def write_workbook(result, path: Path) -> None:
     }).sort_values(["year", "category_code", "gas", "region", "pathway"])
     tcols = list(trace.columns)
     tfmt = {"cell_total_t": FORMATS["t"], "emission_t": FORMATS["t"], "area_basis_ha": FORMATS["ha"],
-            "factor_value": FORMATS["factor"], "strata_sheet_row": FORMATS["int"], "factors_sheet_row": FORMATS["int"]}
+            "factor_value": FORMATS["factor"], "conversion": FORMATS["factor"], "year": FORMATS["int"],
+            "strata_sheet_row": FORMATS["int"], "factors_sheet_row": FORMATS["int"]}
     tnotes = [f"Every category-gas cell of {base} and {latest}: its strata rows (row number in the strata sheet), "
               "factor (row in the factors sheet), and emission_t = area_basis_ha x factor_value x conversion "
               "(fires: burnt area x fuel x factor x conversion); the rows of a cell add up to cell_total_t."]
-    ws = write_sheet(wb, "trace", tcols, [], tfmt, {"factor_id": 30}, tnotes)
+    ws = write_sheet(wb, "trace", tcols, [], tfmt, {"factor_id": 30}, tnotes, data=trace)
     bulk[len(wb.worksheets)] = _Stream(trace, tcols, 0, len(trace), top_row=len(tnotes) + 2,
                                        styles=_style_ids(ws, tcols, tfmt))
 
