@@ -117,9 +117,26 @@ def write_sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), f
     for note in notes:
         ws.append([_cell(ws, note, font=NOTE_FONT)])
     _header(ws, columns)
+    streams = getattr(wb, STREAMS, None)
+    if streams is not None and rows and _streamable(rows):
+        frame = pd.DataFrame(rows, dtype=object)
+        streams[len(wb.worksheets)] = _Stream(frame, list(frame.columns), 0, len(frame), top_row=len(notes) + 2,
+                                              styles=_style_ids(ws, columns, formats), general=True)
+        return ws
     for values in rows:
         ws.append([_cell(ws, v, formats.get(col)) for col, v in zip(columns, values)])
     return ws
+
+
+STREAMS = "histosol_streams"  # attribute of a workbook whose table rows finish_workbook streams: {sheet number: _Stream}
+_STREAMED_TYPES = (str, int, float, np.integer, np.floating, type(None), type(pd.NA))
+
+
+def _streamable(rows) -> bool:
+    """Whether every value is text, a number or a blank (what the streamed rows write as openpyxl's
+    cells would); anything else (a boolean, a date) goes through openpyxl's cells."""
+    kinds = {type(v) for row in rows for v in row}
+    return all(issubclass(k, _STREAMED_TYPES) and not issubclass(k, (bool, np.bool_)) for k in kinds)
 
 
 def _letter(index: int) -> str:
@@ -139,6 +156,7 @@ def write_workbook(result, path: Path) -> None:
     stage(getattr(result, "_progress", None), "writing the workbook")
     s = result.settings
     wb = Workbook(write_only=True)
+    setattr(wb, STREAMS, {})  # every table sheet's rows are streamed (write_sheet)
     agg = result.aggregates
     base, latest = agg.base_year, agg.latest_year
     cats = result.categories
@@ -194,7 +212,7 @@ def write_workbook(result, path: Path) -> None:
            "parameter_value": FORMATS["factor"], "conversion": FORMATS["factor"], "year": FORMATS["int"],
            "input_row": FORMATS["int"]}
     parts = max(1, int(np.ceil(len(em) / chunk)))
-    bulk: dict[int, _Stream] = {}  # sheet number in the file -> its data rows, written as XML by finish_workbook
+    bulk: dict[int, _Stream] = getattr(wb, STREAMS)  # sheet number -> its data rows, written as XML by finish_workbook
     for i in range(parts):
         title = "strata" if parts == 1 else f"strata_{i + 1}"
         ws = write_sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30},
@@ -294,7 +312,8 @@ def write_workbook(result, path: Path) -> None:
 class _Stream(NamedTuple):
     """Data rows of one sheet, streamed as XML by :func:`finish_workbook` after openpyxl has written its head
     (notes and header): rows ``first:stop`` of ``frame[columns]``, the first on sheet row ``top_row``;
-    ``styles`` gives the cell style id of each numeric column (None: no number format)."""
+    ``styles`` gives the cell style id of each numeric column (None: no number format); ``general``: see
+    :func:`_rows_xml_pieces`."""
 
     frame: pd.DataFrame
     columns: list
@@ -302,6 +321,7 @@ class _Stream(NamedTuple):
     stop: int
     top_row: int = 2
     styles: list | None = None
+    general: bool = False  # rows of write_sheet: any column may mix text and numbers, numbers as openpyxl writes them
 
 
 def _style_ids(ws, columns, formats: dict) -> list:
@@ -366,40 +386,63 @@ def _escape(text) -> str:
     return re.sub(_XML_ILLEGAL, "", t)
 
 
-def _column_text(values: pd.Series) -> tuple[np.ndarray, list[str], np.ndarray, bool]:
-    """Cell text of one column: ``codes`` (one per row, -1 for an absent cell), the distinct
-    ``texts`` they point to, a mask of the rows that have a cell, and whether the column is numeric.
+def _column_cells(values: pd.Series, style, strings: SharedStrings, general: bool = False
+                  ) -> tuple[np.ndarray, list[str], np.ndarray]:
+    """The cells of one column: ``codes`` (one per row), the distinct cell endings they point to (the
+    XML after the cell's row number), and a mask of the rows that have a cell.
 
-    Numbers: ``repr`` of the float (integer columns without ".0"), computed once per distinct value
-    (by bit pattern, so -0.0 stays "-0.0"); text: XML-escaped, illegal control characters removed.
-    A missing or non-finite number, a missing or empty text is an absent cell.
+    Numbers: ``repr`` of the float (integer columns without ".0"), or with ``general`` the text openpyxl
+    writes ("%.16g"); computed once per distinct value (by bit pattern, so -0.0 stays "-0.0"), with the
+    column's style id ``style`` if it has one. Text: an index into the shared string table ``strings``
+    (XML-escaped, illegal control characters removed; with ``general`` cut at 32,767 characters as
+    openpyxl cuts it). With ``general`` an object column may mix text and numbers. A missing or
+    non-finite number, a missing or empty text is an absent cell.
     """
-    if pd.api.types.is_numeric_dtype(values):
+    attr = f' s="{style}"' if style else ""
+    if pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values):
         floats = values.astype(float).to_numpy()
-        finite = values.notna().to_numpy() & np.isfinite(floats)
+        present = values.notna().to_numpy() & np.isfinite(floats)
         codes, uniques = pd.factorize(floats.view(np.int64))
-        texts = [repr(v) for v in uniques.view(np.float64).tolist()]
-        if pd.api.types.is_integer_dtype(values):
-            texts = [t[:-2] if t.endswith(".0") else t for t in texts]
-        return codes, texts, finite, True
+        numbers = uniques.view(np.float64).tolist()
+        if general:
+            texts = ["%.16g" % v for v in numbers]
+        else:
+            texts = [repr(v) for v in numbers]
+            if pd.api.types.is_integer_dtype(values):
+                texts = [t[:-2] if t.endswith(".0") else t for t in texts]
+        return codes, [f'"{attr}><v>{t}</v></c>' for t in texts], present
     codes, uniques = pd.factorize(values)  # a missing value -> -1
-    texts = [_escape(t) for t in uniques]
+    tails, absent = [], []
+    for i, v in enumerate(uniques):
+        if isinstance(v, str) or not general:
+            t = _escape(v[:32767] if general else v)
+            if t:
+                tails.append(f'" t="s"><v>{strings.ids([t])[0]}</v></c>')
+                continue
+        elif np.isfinite(v):
+            tails.append(f'"{attr}><v>{"%.16g" % v}</v></c>')
+            continue
+        tails.append("")
+        absent.append(i)
     present = codes >= 0
-    empty = [i for i, t in enumerate(texts) if not t]
-    if empty:
-        present &= ~np.isin(codes, empty)
-    return codes, texts, present, False
+    if absent:
+        present &= ~np.isin(codes, absent)
+    if tails:
+        text = np.array(['t="s"' in t for t in tails], dtype=bool)
+        strings.count += int((present & text[codes]).sum())
+    return codes, tails, present
 
 
 def _rows_xml_pieces(frame: pd.DataFrame, first_row: int, rows_per_piece: int = ROWS_PER_PIECE,
-                     styles: list | None = None, strings: SharedStrings | None = None):
+                     styles: list | None = None, strings: SharedStrings | None = None, general: bool = False):
     """Rows of a sheet as SpreadsheetML, ``rows_per_piece`` rows at a time (UTF-8 bytes).
 
     Text goes into the shared string table ``strings`` (``t="s"`` cells, never formulas), numbers
     are written as numbers (with the column's style id where ``styles`` gives one), blanks as absent
     cells. The pieces of a row (tags, row number, each distinct value's cell text) are laid out in an
     object array, row by row, and joined once: no string operation per cell. The concatenated pieces
-    do not depend on ``rows_per_piece``.
+    do not depend on ``rows_per_piece``. ``general``: the rows of :func:`write_sheet` (object columns
+    of text and numbers), written with the cell values openpyxl's cells would have.
     """
     from openpyxl.utils import get_column_letter
 
@@ -415,13 +458,7 @@ def _rows_xml_pieces(frame: pd.DataFrame, first_row: int, rows_per_piece: int = 
         cells[:, 1] = numbers
         cells[:, 2] = '">'
         for j, (col, style) in enumerate(zip(part.columns, styles)):
-            codes, texts, present, numeric = _column_text(part[col])
-            if numeric:
-                attr = f' s="{style}"' if style else ""
-                tails = [f'"{attr}><v>{t}</v></c>' for t in texts]
-            else:
-                tails = [f'" t="s"><v>{i}</v></c>' for i in strings.ids(texts)]
-                strings.count += int(present.sum())
+            codes, tails, present = _column_cells(part[col], style, strings, general)
             k = 3 + 3 * j
             cells[:, k] = prefixes[j]
             cells[:, k + 1] = numbers
@@ -539,7 +576,7 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
                 for a in range(stream.first, stream.stop, ROWS_PER_PIECE):
                     part = stream.frame.iloc[a:min(a + ROWS_PER_PIECE, stream.stop)][stream.columns]
                     for piece in _rows_xml_pieces(part, stream.top_row + a - stream.first, styles=stream.styles,
-                                                  strings=strings):
+                                                  strings=strings, general=stream.general):
                         spool.write(piece)
                 spool.write(content[split:])
                 entry.file_size = spool.tell()
