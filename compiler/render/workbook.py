@@ -344,9 +344,10 @@ _XML_ILLEGAL = r"[\x00-\x08\x0b\x0c\x0e-\x1f]"
 
 ROWS_PER_PIECE = 20_000  # strata rows turned into XML at a time (bounds memory; the bytes do not depend on it)
 SPOOL_BYTES = 64 * 1024 * 1024  # a streamed sheet is kept in memory up to this size, then spooled to disk
-# zlib level of the streamed sheets: at 1e5 stratum-years (926 MB of sheet XML) level 3 deflates in 2.5 s
-# to 86 MB, the default level 6 in 5.7 s to 76 MB, level 1 in 2.2 s to 95 MB (measured on the 2-core machine).
-STREAM_COMPRESSION = 3
+# zlib level of the streamed sheets: at 1e5 stratum-years the strata sheet (493 MB of XML with shared strings)
+# deflates at level 2 in 1.85 s CPU to 80 MB, level 3 in 2.8 s to 75 MB, level 1 in 1.7 s to 83 MB, the
+# default level 6 in 5.7 s to 63 MB (measured on the 2-core machine).
+STREAM_COMPRESSION = 2
 
 
 class SharedStrings:
@@ -400,17 +401,21 @@ def _column_cells(values: pd.Series, style, strings: SharedStrings, general: boo
     """
     attr = f' s="{style}"' if style else ""
     if pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values):
+        if not general and isinstance(values.dtype, np.dtype) and values.dtype.kind in "iu":
+            # repr of the float without ".0" is the integer's own text below 1e16 (years, row numbers)
+            codes, uniques = pd.factorize(values.to_numpy())
+            if len(uniques) and np.abs(uniques).max() < 10 ** 16:
+                return codes, [f'"{attr}><v>{v}</v></c>' for v in uniques.tolist()], np.ones(len(values), bool)
         floats = values.astype(float).to_numpy()
         present = values.notna().to_numpy() & np.isfinite(floats)
         codes, uniques = pd.factorize(floats.view(np.int64))
         numbers = uniques.view(np.float64).tolist()
         if general:
-            texts = ["%.16g" % v for v in numbers]
-        else:
+            return codes, [f'"{attr}><v>{"%.16g" % v}</v></c>' for v in numbers], present
+        if pd.api.types.is_integer_dtype(values):
             texts = [repr(v) for v in numbers]
-            if pd.api.types.is_integer_dtype(values):
-                texts = [t[:-2] if t.endswith(".0") else t for t in texts]
-        return codes, [f'"{attr}><v>{t}</v></c>' for t in texts], present
+            return codes, [f'"{attr}><v>{t[:-2] if t.endswith(".0") else t}</v></c>' for t in texts], present
+        return codes, [f'"{attr}><v>{v!r}</v></c>' for v in numbers], present
     codes, uniques = pd.factorize(values)  # a missing value -> -1
     tails, absent = [], []
     for i, v in enumerate(uniques):
