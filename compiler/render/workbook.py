@@ -344,9 +344,9 @@ _XML_ILLEGAL = r"[\x00-\x08\x0b\x0c\x0e-\x1f]"
 
 ROWS_PER_PIECE = 20_000  # strata rows turned into XML at a time (bounds memory; the bytes do not depend on it)
 SPOOL_BYTES = 64 * 1024 * 1024  # a streamed sheet is kept in memory up to this size, then spooled to disk
-# zlib level of the streamed sheets: at 1e5 stratum-years the strata sheet (493 MB of XML with shared strings)
-# deflates at level 2 in 1.85 s CPU to 80 MB, level 3 in 2.8 s to 75 MB, level 1 in 1.7 s to 83 MB, the
-# default level 6 in 5.7 s to 63 MB (measured on the 2-core machine).
+# zlib level of the streamed sheets: at 1e5 stratum-years the strata sheet (345 MB of XML, shared strings and
+# no cell references) deflates at level 2 in 1.0 s CPU to 37 MB; with cell references (493 MB) level 2 took
+# 1.85 s to 80 MB, level 3 2.8 s to 75 MB, level 1 1.7 s to 83 MB, level 6 5.7 s to 63 MB (2-core machine).
 STREAM_COMPRESSION = 2
 
 
@@ -389,8 +389,8 @@ def _escape(text) -> str:
 
 def _column_cells(values: pd.Series, style, strings: SharedStrings, general: bool = False
                   ) -> tuple[np.ndarray, list[str], np.ndarray]:
-    """The cells of one column: ``codes`` (one per row), the distinct cell endings they point to (the
-    XML after the cell's row number), and a mask of the rows that have a cell.
+    """The cells of one column: ``codes`` (one per row), the distinct cells they point to (XML, without
+    a reference: the cell's place in its row gives its column), and a mask of the rows that have a cell.
 
     Numbers: ``repr`` of the float (integer columns without ".0"), or with ``general`` the text openpyxl
     writes ("%.16g"); computed once per distinct value (by bit pattern, so -0.0 stays "-0.0"), with the
@@ -405,27 +405,27 @@ def _column_cells(values: pd.Series, style, strings: SharedStrings, general: boo
             # repr of the float without ".0" is the integer's own text below 1e16 (years, row numbers)
             codes, uniques = pd.factorize(values.to_numpy())
             if len(uniques) and np.abs(uniques).max() < 10 ** 16:
-                return codes, [f'"{attr}><v>{v}</v></c>' for v in uniques.tolist()], np.ones(len(values), bool)
+                return codes, [f'<c{attr}><v>{v}</v></c>' for v in uniques.tolist()], np.ones(len(values), bool)
         floats = values.astype(float).to_numpy()
         present = values.notna().to_numpy() & np.isfinite(floats)
         codes, uniques = pd.factorize(floats.view(np.int64))
         numbers = uniques.view(np.float64).tolist()
         if general:
-            return codes, [f'"{attr}><v>{"%.16g" % v}</v></c>' for v in numbers], present
+            return codes, [f'<c{attr}><v>{"%.16g" % v}</v></c>' for v in numbers], present
         if pd.api.types.is_integer_dtype(values):
             texts = [repr(v) for v in numbers]
-            return codes, [f'"{attr}><v>{t[:-2] if t.endswith(".0") else t}</v></c>' for t in texts], present
-        return codes, [f'"{attr}><v>{v!r}</v></c>' for v in numbers], present
+            return codes, [f'<c{attr}><v>{t[:-2] if t.endswith(".0") else t}</v></c>' for t in texts], present
+        return codes, [f'<c{attr}><v>{v!r}</v></c>' for v in numbers], present
     codes, uniques = pd.factorize(values)  # a missing value -> -1
     tails, absent = [], []
     for i, v in enumerate(uniques):
         if isinstance(v, str) or not general:
             t = _escape(v[:32767] if general else v)
             if t:
-                tails.append(f'" t="s"><v>{strings.ids([t])[0]}</v></c>')
+                tails.append(f'<c t="s"><v>{strings.ids([t])[0]}</v></c>')
                 continue
         elif np.isfinite(v):
-            tails.append(f'"{attr}><v>{"%.16g" % v}</v></c>')
+            tails.append(f'<c{attr}><v>{"%.16g" % v}</v></c>')
             continue
         tails.append("")
         absent.append(i)
@@ -443,33 +443,26 @@ def _rows_xml_pieces(frame: pd.DataFrame, first_row: int, rows_per_piece: int = 
     """Rows of a sheet as SpreadsheetML, ``rows_per_piece`` rows at a time (UTF-8 bytes).
 
     Text goes into the shared string table ``strings`` (``t="s"`` cells, never formulas), numbers
-    are written as numbers (with the column's style id where ``styles`` gives one), blanks as absent
-    cells. The pieces of a row (tags, row number, each distinct value's cell text) are laid out in an
-    object array, row by row, and joined once: no string operation per cell. The concatenated pieces
-    do not depend on ``rows_per_piece``. ``general``: the rows of :func:`write_sheet` (object columns
-    of text and numbers), written with the cell values openpyxl's cells would have.
+    are written as numbers (with the column's style id where ``styles`` gives one). Each row holds
+    every column in order, without cell references (``r`` is optional in SpreadsheetML: a cell's place
+    gives its column), a blank as an empty ``<c/>``. A row's cells are laid out in an object array, one
+    entry per distinct value of each column, and the rows are joined once: no string operation per
+    cell. The concatenated pieces do not depend on ``rows_per_piece``. ``general``: the rows of
+    :func:`write_sheet` (object columns of text and numbers), written with the cell values openpyxl's
+    cells would have.
     """
-    from openpyxl.utils import get_column_letter
-
     strings = strings if strings is not None else SharedStrings()
-    prefixes = [f'<c r="{get_column_letter(j + 1)}' for j in range(len(frame.columns))]
-    styles = styles or [None] * len(prefixes)
-    width = 4 + 3 * len(prefixes)
+    width = len(frame.columns)
+    styles = styles or [None] * width
     for a in range(0, len(frame), rows_per_piece):
         part = frame.iloc[a:a + rows_per_piece]
-        numbers = np.array([str(i) for i in range(first_row + a, first_row + a + len(part))], dtype=object)
-        cells = np.empty((len(part), width), dtype=object)
-        cells[:, 0] = '<row r="'
-        cells[:, 1] = numbers
-        cells[:, 2] = '">'
+        cells = np.empty((len(part), width + 2), dtype=object)
+        cells[:, 0] = [f'<row r="{i}">' for i in range(first_row + a, first_row + a + len(part))]
         for j, (col, style) in enumerate(zip(part.columns, styles)):
             codes, tails, present = _column_cells(part[col], style, strings, general)
-            k = 3 + 3 * j
-            cells[:, k] = prefixes[j]
-            cells[:, k + 1] = numbers
-            cells[:, k + 2] = np.array([*tails, ""], dtype=object)[codes]
             if not present.all():
-                cells[~present, k:k + 3] = ""
+                codes = np.where(present, codes, -1)
+            cells[:, j + 1] = np.array([*tails, "<c/>"], dtype=object)[codes]
         cells[:, -1] = "</row>"
         yield "".join(cells.ravel().tolist()).encode("utf-8")
 
