@@ -1,9 +1,11 @@
 """inventory.xlsx: summary, reporting table, strata detail, factors, findings, settings.
 
-Written in openpyxl's write-only mode (constant memory). Every string is
-stored as a string cell, never as a formula, whatever it starts with. The
-file is made byte-identical for identical inputs: document timestamps and
-zip entry dates are fixed to the compile date.
+openpyxl's write-only mode writes each sheet's head (widths, panes, notes,
+header); the rows are streamed as SpreadsheetML by finish_workbook, text in a
+shared string table. Every string is stored as a string cell, never as a
+formula, whatever it starts with. The file is made byte-identical for
+identical inputs: document timestamps and zip entry dates are fixed to the
+compile date.
 """
 
 from __future__ import annotations
@@ -128,7 +130,8 @@ def write_sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), f
     return ws
 
 
-STREAMS = "histosol_streams"  # attribute of a workbook whose table rows finish_workbook streams: {sheet number: _Stream}
+# The attribute of a workbook whose table rows finish_workbook streams: {sheet number in the file: _Stream}.
+STREAMS = "histosol_streams"
 _STREAMED_TYPES = (str, int, float, np.integer, np.floating, type(None), type(pd.NA))
 
 
