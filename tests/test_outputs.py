@@ -135,6 +135,44 @@ def test_workbook_splits_the_strata_over_sheets_and_streams_them_like_a_serial_w
     assert got["input_row"].tolist() == em["input_row"].tolist()
 
 
+def test_workbook_numbers_carry_a_format_and_fit_their_columns(demo_output, demo_result):
+    # Every numeric column of the strata and trace sheets carries a number format (areas #,##0.0, tonnes
+    # #,##0.000, factors and conversions 0.0####, years and row numbers 0), and every numeric column of
+    # every sheet is at least as wide as its longest number shown in its format: a spreadsheet program
+    # shows ### in a cell too narrow for its number (common practice, no source).
+    from compiler.render.workbook import NUMBER_WIDTH_LIMIT, number_width
+
+    wb = openpyxl.load_workbook(demo_output / "inventory.xlsx")
+    strata = wb["strata"]
+    expected = {"year": "0", "area_ha": "#,##0.0", "factor_value": "0.0####", "emission_t": "#,##0.000",
+                "co2eq_t": "#,##0.000", "area_basis_ha": "#,##0.0", "parameter_value": "0.0####",
+                "emission_basis_t": "#,##0.000", "conversion": "0.0####", "input_row": "0"}
+    numeric = [c for c in EXPORT_COLUMNS if pd.api.types.is_numeric_dtype(demo_result.emissions[c])]
+    assert sorted(numeric) == sorted(expected)
+    for col, fmt in expected.items():
+        cells = [row[0] for row in strata.iter_rows(min_row=2, min_col=EXPORT_COLUMNS.index(col) + 1,
+                                                      max_col=EXPORT_COLUMNS.index(col) + 1)]
+        assert {c.number_format for c in cells if isinstance(c.value, (int, float))} == {fmt}, col
+    trace = wb["trace"]
+    header = [c.value for c in trace[2]]
+    for col in ("year", "cell_total_t", "area_basis_ha", "factor_value", "conversion", "emission_t",
+                "factors_sheet_row"):
+        assert trace.cell(3, header.index(col) + 1).number_format != "General", col
+    # Python's own formatting of the largest number in the format's decimals: "{:,.3f}" for #,##0.000.
+    assert number_width([375196.4852645076, -2547.79], "#,##0.000") == len("-375,196.485")
+    assert number_width([0.1234], "0.0%") == len("12.3%")
+    assert number_width([2024], "0") == 4 and number_width([float("nan")], "0") == 0
+    for ws in wb.worksheets:
+        columns = {}
+        for row in ws.iter_rows():
+            for c in row:
+                if isinstance(c.value, (int, float)) and not isinstance(c.value, bool):
+                    columns.setdefault(c.column_letter, []).append((c.value, c.number_format))
+        for letter, values in columns.items():
+            need = number_width([v for v, _ in values], values[0][1])
+            assert ws.column_dimensions[letter].width >= min(NUMBER_WIDTH_LIMIT, need + 1), (ws.title, letter)
+
+
 def test_workbook_factors_sheet_shows_the_agency_check(demo_output):
     # The agency's status from its factor review log; the repository's verification notes are not shown.
     ws = openpyxl.load_workbook(demo_output / "inventory.xlsx")["factors"]

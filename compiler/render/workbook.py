@@ -1,9 +1,11 @@
 """inventory.xlsx: summary, reporting table, strata detail, factors, findings, settings.
 
-Written in openpyxl's write-only mode (constant memory). Every string is
-stored as a string cell, never as a formula, whatever it starts with. The
-file is made byte-identical for identical inputs: document timestamps and
-zip entry dates are fixed to the compile date.
+openpyxl's write-only mode writes each sheet's head (widths, panes, notes,
+header); the rows are streamed as SpreadsheetML by finish_workbook, text in a
+shared string table. Every string is stored as a string cell, never as a
+formula, whatever it starts with. The file is made byte-identical for
+identical inputs: document timestamps and zip entry dates are fixed to the
+compile date.
 """
 
 from __future__ import annotations
@@ -59,23 +61,85 @@ def _header(ws, names):
     ws.append(row)
 
 
-def write_sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), freeze="A2"):
-    """A table sheet: optional note lines, a header row, data rows."""
+NUMBER_WIDTH_LIMIT = 30  # a numeric column is widened to its longest formatted number, up to this width
+
+
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, (bool, np.bool_))
+
+
+def number_width(values, number_format: str | None) -> int:
+    """Characters the longest of ``values`` (numbers; NaN and infinities are blank cells) takes when a
+    spreadsheet program shows it in ``number_format`` (None: General): an upper bound, from the
+    largest magnitude, a minus sign if any value is negative, and the format's thousands separators,
+    decimals (optional ``#`` decimals counted in full), percent sign or exponent. 0 if none is finite."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if not v.size:
+        return 0
+    big = float(np.abs(v).max())
+    sign = int(bool((v < 0).any()))
+    fmt = number_format or "General"
+    if fmt == "General":  # at most 11 characters; decimals are rounded away to fit, the integer part is not
+        integer = len(f"{big:.0f}")
+        return sign + (integer if (v == np.round(v)).all() else max(integer, min(11, integer + 7)))
+    decimals = len(re.sub(r"[^0#]", "", fmt.split(".", 1)[1].split("E")[0])) if "." in fmt else 0
+    if "E" in fmt:
+        return sign + len(f"{big:.{decimals}E}")
+    if "%" in fmt:
+        return sign + len(f"{big * 100:{',' if ',' in fmt else ''}.{decimals}f}") + 1
+    return sign + len(f"{big:{',' if ',' in fmt else ''}.{decimals}f}")
+
+
+def _column_width(col, numbers, formats: dict, widths: dict) -> float:
+    """The width of a column: the given one (or one from its header), widened so that its longest
+    formatted number fits (bounded by NUMBER_WIDTH_LIMIT): a spreadsheet shows ### where it does not."""
+    width = widths.get(col, max(10, min(48, len(str(col)) + 4)))
+    need = number_width(numbers, formats.get(col)) if len(numbers) else 0
+    return max(width, min(NUMBER_WIDTH_LIMIT, need + 2)) if need else width
+
+
+def write_sheet(wb, title, columns, rows, formats=None, widths=None, notes=(), freeze="A2", data=None):
+    """A table sheet: optional note lines, a header row, data rows. ``data``: the frame whose rows are
+    streamed into the sheet later (rows is then empty), read here for the column widths."""
     ws = wb.create_sheet(title)
     formats = formats or {}
     widths = widths or {}
+    rows = list(rows)
     for i, col in enumerate(columns):
-        letter = _letter(i)
-        ws.column_dimensions[letter].width = widths.get(col, max(10, min(48, len(str(col)) + 4)))
+        if data is not None:
+            numbers = (data[col].to_numpy(dtype=float, na_value=np.nan)
+                       if pd.api.types.is_numeric_dtype(data[col]) else [])
+        else:
+            numbers = [v for v in (r[i] for r in rows) if _is_number(v)]
+        ws.column_dimensions[_letter(i)].width = _column_width(col, numbers, formats, widths)
     if notes:
         freeze = f"{freeze[0]}{len(notes) + 2}"
     ws.freeze_panes = freeze  # must precede the first row in write-only mode
     for note in notes:
         ws.append([_cell(ws, note, font=NOTE_FONT)])
     _header(ws, columns)
+    streams = getattr(wb, STREAMS, None)
+    if streams is not None and rows and _streamable(rows):
+        frame = pd.DataFrame(rows, dtype=object)
+        streams[len(wb.worksheets)] = _Stream(frame, list(frame.columns), 0, len(frame), top_row=len(notes) + 2,
+                                              styles=_style_ids(ws, columns, formats), general=True)
+        return ws
     for values in rows:
         ws.append([_cell(ws, v, formats.get(col)) for col, v in zip(columns, values)])
     return ws
+
+
+# The attribute of a workbook whose table rows finish_workbook streams: {sheet number in the file: _Stream}.
+STREAMS = "histosol_streams"
+_STREAMED_TYPES = (str, int, float, np.integer, np.floating, type(None), type(pd.NA))
+
+
+def _streamable(rows) -> bool:
+    """Whether every value is text, a number or a blank (what the streamed rows write as openpyxl's
+    cells would); anything else (a boolean, a date) goes through openpyxl's cells."""
+    kinds = {type(v) for row in rows for v in row}
+    return all(issubclass(k, _STREAMED_TYPES) and not issubclass(k, (bool, np.bool_)) for k in kinds)
 
 
 def _letter(index: int) -> str:
@@ -95,6 +159,7 @@ def write_workbook(result, path: Path, progress=None) -> None:
     stage(progress, "writing the workbook")
     s = result.settings
     wb = Workbook(write_only=True)
+    setattr(wb, STREAMS, {})  # every table sheet's rows are streamed (write_sheet)
     agg = result.aggregates
     base, latest = agg.base_year, agg.latest_year
     cats = result.categories
@@ -147,13 +212,16 @@ def write_workbook(result, path: Path, progress=None) -> None:
     chunk = SHEET_ROW_LIMIT - 1
     fmt = {"area_ha": FORMATS["ha"], "area_basis_ha": FORMATS["ha"], "emission_t": FORMATS["t"],
            "co2eq_t": FORMATS["t"], "emission_basis_t": FORMATS["t"], "factor_value": FORMATS["factor"],
-           "parameter_value": FORMATS["factor"], "year": FORMATS["int"], "input_row": FORMATS["int"]}
+           "parameter_value": FORMATS["factor"], "conversion": FORMATS["factor"], "year": FORMATS["int"],
+           "input_row": FORMATS["int"]}
     parts = max(1, int(np.ceil(len(em) / chunk)))
-    bulk: dict[int, _Stream] = {}  # sheet number in the file -> its data rows, written as XML by finish_workbook
+    bulk: dict[int, _Stream] = getattr(wb, STREAMS)  # sheet number -> its data rows, written as XML by finish_workbook
     for i in range(parts):
         title = "strata" if parts == 1 else f"strata_{i + 1}"
-        write_sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30})
-        bulk[len(wb.worksheets)] = _Stream(em, EXPORT_COLUMNS, i * chunk, min((i + 1) * chunk, len(em)))
+        ws = write_sheet(wb, title, EXPORT_COLUMNS, [], fmt, {"notation_reason": 50, "equation": 30},
+                         data=em.iloc[i * chunk:(i + 1) * chunk])
+        bulk[len(wb.worksheets)] = _Stream(em, EXPORT_COLUMNS, i * chunk, min((i + 1) * chunk, len(em)),
+                                           styles=_style_ids(ws, EXPORT_COLUMNS, fmt))
 
     # trace: every category-gas cell of the base and latest year, linked to its strata and factor rows
     strata_row = pd.Series(np.arange(len(em)) + 2, index=em.index)  # row numbers in the strata sheet
@@ -173,11 +241,12 @@ def write_workbook(result, path: Path, progress=None) -> None:
     }).sort_values(["year", "category_code", "gas", "region", "pathway"])
     tcols = list(trace.columns)
     tfmt = {"cell_total_t": FORMATS["t"], "emission_t": FORMATS["t"], "area_basis_ha": FORMATS["ha"],
-            "factor_value": FORMATS["factor"], "strata_sheet_row": FORMATS["int"], "factors_sheet_row": FORMATS["int"]}
+            "factor_value": FORMATS["factor"], "conversion": FORMATS["factor"], "year": FORMATS["int"],
+            "strata_sheet_row": FORMATS["int"], "factors_sheet_row": FORMATS["int"]}
     tnotes = [f"Every category-gas cell of {base} and {latest}: its strata rows (row number in the strata sheet), "
               "factor (row in the factors sheet), and emission_t = area_basis_ha x factor_value x conversion "
               "(fires: burnt area x fuel x factor x conversion); the rows of a cell add up to cell_total_t."]
-    ws = write_sheet(wb, "trace", tcols, [], tfmt, {"factor_id": 30}, tnotes)
+    ws = write_sheet(wb, "trace", tcols, [], tfmt, {"factor_id": 30}, tnotes, data=trace)
     bulk[len(wb.worksheets)] = _Stream(trace, tcols, 0, len(trace), top_row=len(tnotes) + 2,
                                        styles=_style_ids(ws, tcols, tfmt))
 
@@ -247,7 +316,8 @@ def write_workbook(result, path: Path, progress=None) -> None:
 class _Stream(NamedTuple):
     """Data rows of one sheet, streamed as XML by :func:`finish_workbook` after openpyxl has written its head
     (notes and header): rows ``first:stop`` of ``frame[columns]``, the first on sheet row ``top_row``;
-    ``styles`` gives the cell style id of each numeric column (None: no number format)."""
+    ``styles`` gives the cell style id of each numeric column (None: no number format); ``general``: see
+    :func:`_rows_xml_pieces`."""
 
     frame: pd.DataFrame
     columns: list
@@ -255,6 +325,7 @@ class _Stream(NamedTuple):
     stop: int
     top_row: int = 2
     styles: list | None = None
+    general: bool = False  # rows of write_sheet: any column may mix text and numbers, numbers as openpyxl writes them
 
 
 def _style_ids(ws, columns, formats: dict) -> list:
@@ -277,64 +348,127 @@ _XML_ILLEGAL = r"[\x00-\x08\x0b\x0c\x0e-\x1f]"
 
 ROWS_PER_PIECE = 20_000  # strata rows turned into XML at a time (bounds memory; the bytes do not depend on it)
 SPOOL_BYTES = 64 * 1024 * 1024  # a streamed sheet is kept in memory up to this size, then spooled to disk
-# zlib level of the streamed sheets: at 1e5 stratum-years (926 MB of sheet XML) level 3 deflates in 2.5 s
-# to 86 MB, the default level 6 in 5.7 s to 76 MB, level 1 in 2.2 s to 95 MB (measured on the 2-core machine).
-STREAM_COMPRESSION = 3
+# zlib level of the streamed sheets: at 1e5 stratum-years the strata sheet (345 MB of XML, shared strings and
+# no cell references) deflates at level 2 in 1.0 s CPU to 37 MB; with cell references (493 MB) level 2 took
+# 1.85 s to 80 MB, level 3 2.8 s to 75 MB, level 1 1.7 s to 83 MB, level 6 5.7 s to 63 MB (2-core machine).
+STREAM_COMPRESSION = 2
 
 
-def _column_text(values: pd.Series) -> tuple[np.ndarray, bool]:
-    """Cell text of one column (object array, "" for an absent cell) and whether it is numeric.
+class SharedStrings:
+    """The workbook's shared string table (xl/sharedStrings.xml) of the streamed sheets: each distinct
+    text once, in the order of first use, cells refer to it by index (``t="s"``). Texts are kept as
+    written in the XML (escaped, illegal control characters removed)."""
 
-    The same text as the column-wise expressions it replaces: ``repr`` of the float (integer
-    columns without ".0"), XML-escaped text with the illegal control characters removed. Computed
-    once per distinct value (by bit pattern for numbers, so -0.0 stays "-0.0").
+    def __init__(self) -> None:
+        self.index: dict[str, int] = {}
+        self.count = 0  # cells that refer to the table
+
+    def ids(self, texts) -> list[int]:
+        index = self.index
+        out = []
+        for t in texts:
+            i = index.get(t)
+            if i is None:
+                i = index[t] = len(index)
+            out.append(i)
+        return out
+
+    def xml(self) -> bytes:
+        body = "".join(f'<si><t xml:space="preserve">{t}</t></si>' for t in self.index)
+        return (f'<sst xmlns="{_MAIN_NS}" count="{self.count}" uniqueCount="{len(self.index)}">{body}</sst>'
+                ).encode("utf-8")
+
+
+_MAIN_NS = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
+_SST_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sharedStrings+xml"
+_SST_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships/sharedStrings"
+
+
+def _escape(text) -> str:
+    t = str(text)
+    for a, b in _XML_ESCAPES:
+        t = t.replace(a, b)
+    return re.sub(_XML_ILLEGAL, "", t)
+
+
+def _column_cells(values: pd.Series, style, strings: SharedStrings, general: bool = False
+                  ) -> tuple[np.ndarray, list[str], np.ndarray]:
+    """The cells of one column: ``codes`` (one per row), the distinct cells they point to (XML, without
+    a reference: the cell's place in its row gives its column), and a mask of the rows that have a cell.
+
+    Numbers: ``repr`` of the float (integer columns without ".0"), or with ``general`` the text openpyxl
+    writes ("%.16g"); computed once per distinct value (by bit pattern, so -0.0 stays "-0.0"), with the
+    column's style id ``style`` if it has one. Text: an index into the shared string table ``strings``
+    (XML-escaped, illegal control characters removed; with ``general`` cut at 32,767 characters as
+    openpyxl cuts it). With ``general`` an object column may mix text and numbers. A missing or
+    non-finite number, a missing or empty text is an absent cell.
     """
-    if pd.api.types.is_numeric_dtype(values):
+    attr = f' s="{style}"' if style else ""
+    if pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values):
+        if not general and isinstance(values.dtype, np.dtype) and values.dtype.kind in "iu":
+            # repr of the float without ".0" is the integer's own text below 1e16 (years, row numbers)
+            codes, uniques = pd.factorize(values.to_numpy())
+            if len(uniques) and np.abs(uniques).max() < 10 ** 16:
+                return codes, [f'<c{attr}><v>{v}</v></c>' for v in uniques.tolist()], np.ones(len(values), bool)
         floats = values.astype(float).to_numpy()
-        finite = values.notna().to_numpy() & np.isfinite(floats)
+        present = values.notna().to_numpy() & np.isfinite(floats)
         codes, uniques = pd.factorize(floats.view(np.int64))
-        texts = [repr(v) for v in uniques.view(np.float64).tolist()]
+        numbers = uniques.view(np.float64).tolist()
+        if general:
+            return codes, [f'<c{attr}><v>{"%.16g" % v}</v></c>' for v in numbers], present
         if pd.api.types.is_integer_dtype(values):
-            texts = [t[:-2] if t.endswith(".0") else t for t in texts]
-        out = np.array(texts, dtype=object)[codes] if len(texts) else np.empty(len(values), dtype=object)
-        out[~finite] = ""
-        return out, True
-    codes, uniques = pd.factorize(values)  # a missing value -> -1 -> the appended "" (an absent cell)
-    cleaned = []
-    for t in uniques:
-        t = str(t)
-        for a, b in _XML_ESCAPES:
-            t = t.replace(a, b)
-        cleaned.append(re.sub(_XML_ILLEGAL, "", t))
-    return np.array([*cleaned, ""], dtype=object)[codes], False
+            texts = [repr(v) for v in numbers]
+            return codes, [f'<c{attr}><v>{t[:-2] if t.endswith(".0") else t}</v></c>' for t in texts], present
+        return codes, [f'<c{attr}><v>{v!r}</v></c>' for v in numbers], present
+    codes, uniques = pd.factorize(values)  # a missing value -> -1
+    tails, absent = [], []
+    for i, v in enumerate(uniques):
+        if isinstance(v, str) or not general:
+            t = _escape(v[:32767] if general else v)
+            if t:
+                tails.append(f'<c t="s"><v>{strings.ids([t])[0]}</v></c>')
+                continue
+        elif np.isfinite(v):
+            tails.append(f'<c{attr}><v>{"%.16g" % v}</v></c>')
+            continue
+        tails.append("")
+        absent.append(i)
+    present = codes >= 0
+    if absent:
+        present &= ~np.isin(codes, absent)
+    if tails:
+        text = np.array(['t="s"' in t for t in tails], dtype=bool)
+        strings.count += int((present & text[codes]).sum())
+    return codes, tails, present
 
 
 def _rows_xml_pieces(frame: pd.DataFrame, first_row: int, rows_per_piece: int = ROWS_PER_PIECE,
-                     styles: list | None = None):
+                     styles: list | None = None, strings: SharedStrings | None = None, general: bool = False):
     """Rows of a sheet as SpreadsheetML, ``rows_per_piece`` rows at a time (UTF-8 bytes).
 
-    Text is written as inline strings (never formulas), numbers as numbers (with the column's style
-    id where ``styles`` gives one), blanks as absent cells; the concatenated pieces are the bytes the
-    column-wise version produced in one string.
+    Text goes into the shared string table ``strings`` (``t="s"`` cells, never formulas), numbers
+    are written as numbers (with the column's style id where ``styles`` gives one). Each row holds
+    every column in order, without cell references (``r`` is optional in SpreadsheetML: a cell's place
+    gives its column), a blank as an empty ``<c/>``. A row's cells are laid out in an object array, one
+    entry per distinct value of each column, and the rows are joined once: no string operation per
+    cell. The concatenated pieces do not depend on ``rows_per_piece``. ``general``: the rows of
+    :func:`write_sheet` (object columns of text and numbers), written with the cell values openpyxl's
+    cells would have.
     """
-    from openpyxl.utils import get_column_letter
-
-    letters = [get_column_letter(j + 1) for j in range(len(frame.columns))]
-    styles = styles or [None] * len(letters)
+    strings = strings if strings is not None else SharedStrings()
+    width = len(frame.columns)
+    styles = styles or [None] * width
     for a in range(0, len(frame), rows_per_piece):
         part = frame.iloc[a:a + rows_per_piece]
-        numbers = [str(i) for i in range(first_row + a, first_row + a + len(part))]
-        columns = [[f'<row r="{n}">' for n in numbers]]
-        for letter, col, style in zip(letters, part.columns, styles):
-            text, numeric = _column_text(part[col])
-            if numeric:
-                attr = f' s="{style}"' if style else ""
-                cells = [f'<c r="{letter}{n}"{attr}><v>{v}</v></c>' if v else "" for n, v in zip(numbers, text)]
-            else:
-                cells = [f'<c r="{letter}{n}" t="inlineStr"><is><t xml:space="preserve">{v}</t></is></c>' if v else ""
-                         for n, v in zip(numbers, text)]
-            columns.append(cells)
-        yield ("</row>".join("".join(cells) for cells in zip(*columns)) + "</row>").encode("utf-8")
+        cells = np.empty((len(part), width + 2), dtype=object)
+        cells[:, 0] = [f'<row r="{i}">' for i in range(first_row + a, first_row + a + len(part))]
+        for j, (col, style) in enumerate(zip(part.columns, styles)):
+            codes, tails, present = _column_cells(part[col], style, strings, general)
+            if not present.all():
+                codes = np.where(present, codes, -1)
+            cells[:, j + 1] = np.array([*tails, "<c/>"], dtype=object)[codes]
+        cells[:, -1] = "</row>"
+        yield "".join(cells.ravel().tolist()).encode("utf-8")
 
 
 def _table(wb, title, frame: pd.DataFrame, notes=(), widths=None):
@@ -401,6 +535,8 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
 
     src = zipfile.ZipFile(io.BytesIO(data))
     iso = stamp.strftime("%Y-%m-%dT%H:%M:%SZ")
+    strings = SharedStrings()  # the text of the streamed sheets, written after the sheets (before the styles)
+    shared = False
     with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as dst, ThreadPoolExecutor(1) as writer:
         pending = None  # the entry being written by the second thread (the executor waits for it on exit)
 
@@ -422,6 +558,16 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
                     content = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*(</dcterms:modified>)",
                                      rb"\g<1>" + iso.encode() + rb"\g<2>", content)
                 wait()
+                if info.filename == "xl/styles.xml" and strings.index:
+                    sst = zipfile.ZipInfo("xl/sharedStrings.xml", date_time=stamp.timetuple()[:6])
+                    sst.compress_type, sst.external_attr = zipfile.ZIP_DEFLATED, 0o600 << 16
+                    dst.writestr(sst, strings.xml())
+                    shared = True
+                elif shared and info.filename == "xl/_rels/workbook.xml.rels":
+                    content = _add_relationship(content)
+                elif shared and info.filename == "[Content_Types].xml":
+                    content = content.replace(b"</Types>", f'<Override PartName="/xl/sharedStrings.xml" '
+                                                           f'ContentType="{_SST_TYPE}"/></Types>'.encode())
                 dst.writestr(entry, content)
                 continue
             stream = bulk[int(sheet.group(1))]
@@ -431,7 +577,8 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
                 spool.write(content[:split])
                 for a in range(stream.first, stream.stop, ROWS_PER_PIECE):
                     part = stream.frame.iloc[a:min(a + ROWS_PER_PIECE, stream.stop)][stream.columns]
-                    for piece in _rows_xml_pieces(part, stream.top_row + a - stream.first, styles=stream.styles):
+                    for piece in _rows_xml_pieces(part, stream.top_row + a - stream.first, styles=stream.styles,
+                                                  strings=strings, general=stream.general):
                         spool.write(piece)
                 spool.write(content[split:])
                 entry.file_size = spool.tell()
@@ -442,6 +589,13 @@ def finish_workbook(data: bytes, stamp: _dt.datetime, bulk: dict[int, _Stream] |
                 raise
             pending = writer.submit(_deflate_spool, dst, entry, spool)
         wait()
+
+
+def _add_relationship(rels: bytes) -> bytes:
+    """The workbook's relationships with the shared string table added (the next free ``rId``)."""
+    taken = [int(n) for n in re.findall(rb'Id="rId(\d+)"', rels)]
+    rel = f'<Relationship Type="{_SST_REL}" Target="sharedStrings.xml" Id="rId{max(taken, default=0) + 1}"/>'
+    return rels.replace(b"</Relationships>", rel.encode() + b"</Relationships>")
 
 
 def _deflate_spool(dst: zipfile.ZipFile, entry: zipfile.ZipInfo, spool) -> None:
