@@ -287,7 +287,8 @@ def test_csv_writer_gives_the_bytes_of_pandas_to_csv(tmp_path_factory, rows, pie
     frame = pd.DataFrame({
         "text": pd.Series([r[0] for r in rows], dtype="str"), "value": pd.Series([r[1] for r in rows], dtype=float),
         "count": pd.Series([r[2] for r in rows], dtype="int64"), "flag": pd.Series([r[3] for r in rows], dtype=bool),
-        "sorted out": pd.Series([r[0] for r in rows][::-1], dtype="str")})
+        "sorted out": pd.Series([r[0] for r in rows][::-1], dtype="str"),
+        "coded": pd.Series([r[0] for r in rows], dtype="str").astype("category")})  # as the results table holds text
     folder = tmp_path_factory.mktemp("csv")
     frame.to_csv(folder / "pandas.csv", index=False, lineterminator="\n", encoding="utf-8")
     old, tidy.CSV_ROWS_PER_PIECE = tidy.CSV_ROWS_PER_PIECE, piece

@@ -37,7 +37,8 @@ def write_csv(frame: pd.DataFrame, path: Path, columns: list[str] | None = None)
 
 def _fast_dtype(dtype) -> bool:
     return (dtype == np.float64 or dtype == np.int64 or dtype == np.bool_
-            or isinstance(dtype, pd.StringDtype))
+            or isinstance(dtype, pd.StringDtype)
+            or (isinstance(dtype, pd.CategoricalDtype) and isinstance(dtype.categories.dtype, pd.StringDtype)))
 
 
 def _csv_fields(values) -> list[str]:
@@ -55,6 +56,8 @@ def _csv_fields(values) -> list[str]:
 
 def _column_fields(values: pd.Series) -> np.ndarray:
     """CSV field text of every value of one column (object array); a missing value is an empty field."""
+    if isinstance(values.dtype, pd.CategoricalDtype):  # text categories: each formatted once, taken by code
+        return np.array([*_csv_fields(values.cat.categories), ""], dtype=object)[values.cat.codes.to_numpy()]
     if isinstance(values.dtype, pd.StringDtype):
         codes, uniques = pd.factorize(values)  # missing -> -1 -> the appended empty field
         return np.array([*_csv_fields(uniques), ""], dtype=object)[codes]
