@@ -221,16 +221,31 @@ def _concat(pieces: list[pd.DataFrame]) -> pd.DataFrame:
     for col in RESULT_COLUMNS:
         parts = [p[col] for p in pieces]
         if any(isinstance(part.dtype, pd.CategoricalDtype) or pd.api.types.is_string_dtype(part.dtype)
-               or part.dtype == object for part in parts):
-            cats = [part.astype("category").array for part in parts]
+               or pd.api.types.is_object_dtype(part.dtype) for part in parts):
+            cats = [pd.Series(part).astype("category").array for part in parts]
             cats = [pd.Categorical.from_codes(c.codes, c.categories.astype("str")) for c in cats]  # one dtype
             columns[col] = union_categoricals(cats, sort_categories=True)
         else:
-            columns[col] = np.concatenate([part.to_numpy() for part in parts])
+            columns[col] = np.concatenate([np.asarray(part) for part in parts])
+        for piece in pieces:  # each piece's column is dropped once it is concatenated
+            del piece[col]
     return compact(pd.DataFrame(columns))  # the columns compared with one another share their categories
 
 
-def _base_frame(rows: pd.DataFrame, cov: pd.Series, pathway: str, gas: str, area_column: str) -> pd.DataFrame:
+class _Piece(dict):
+    """One pathway's result columns (arrays of one length ``n``, keyed by column): a DataFrame is made once,
+    from all pathways together (a frame per pathway would consolidate and copy its columns twice)."""
+
+    def __init__(self, columns: dict, n: int, index: pd.Index):
+        super().__init__(columns)
+        self.n, self.index = n, index
+
+    @property
+    def empty(self) -> bool:
+        return self.n == 0
+
+
+def _base_frame(rows: pd.DataFrame, cov: pd.Series, pathway: str, gas: str, area_column: str) -> _Piece:
     """The stratum, trace and blank result columns of one pathway, one row per row of ``rows``."""
     n = len(rows)
     columns = {c: rows[c] if c in rows else _constant("", n) for c in STRATUM_KEYS}
@@ -246,8 +261,9 @@ def _base_frame(rows: pd.DataFrame, cov: pd.Series, pathway: str, gas: str, area
                 "notation_key", "notation_reason"):
         columns[col] = _constant("", n)
     for col in ("factor_value", "parameter_value", "emission_basis_t", "emission_t", "area_basis_ha", "conversion"):
-        columns[col] = np.nan
-    return pd.DataFrame(columns, index=rows.index)
+        columns[col] = np.full(n, np.nan)
+    columns = {c: (v.array if isinstance(v, pd.Series) else v) for c, v in columns.items()}
+    return _Piece(columns, n, rows.index)
 
 
 def _gather(column: pd.Series, codes: np.ndarray, index: pd.Index) -> pd.Series:
@@ -257,13 +273,13 @@ def _gather(column: pd.Series, codes: np.ndarray, index: pd.Index) -> pd.Series:
 
 def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, settings: Settings,
              overrides: pd.DataFrame, lookup: pd.DataFrame, register: pd.DataFrame, log: FindingLog,
-             convention: str, area_column: str = "area_ha", cache: dict | None = None) -> pd.DataFrame:
+             convention: str, area_column: str = "area_ha", cache: dict | None = None) -> _Piece:
     pathway = cov["pathway"]
     model = ROW_MODELS[pathway]
     gas, main_q, second_q = model.gas, model.factor_quantity, model.parameter_quantity
     if cov["status"] != "estimated":
         out = _base_frame(rows, cov, pathway, gas, area_column)
-        out["notation_key"], out["notation_reason"] = _constant(cov["status"], len(out)), _constant(cov["reason"], len(out))
+        out["notation_key"], out["notation_reason"] = _constant(cov["status"], out.n), _constant(cov["reason"], out.n)
         return out
 
     default_ids, ids = _resolve(rows, main_q, library, settings, overrides, cache)
@@ -297,7 +313,7 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
     out["factor_value"] = info["value"].astype(float).to_numpy()[codes]
     out["factor_unit"] = _coded(info["unit"].to_numpy(dtype=object), codes)
     out["tier"] = _coded(info["tier"].to_numpy(dtype=object), codes)
-    area = out["area_ha"].to_numpy()
+    area = np.asarray(out["area_ha"], dtype=float)
 
     if use_secondary:
         sec = sec_ids
@@ -315,22 +331,22 @@ def _pathway(rows: pd.DataFrame, cov: pd.Series, library: FactorLibrary, setting
         scale = _unit_scale(pd.Series(sec_unit, index=out.index), target, convention)
         second = sec_value * scale
     else:
-        second = np.zeros(len(out))
+        second = np.zeros(out.n)
 
-    values = out["factor_value"].to_numpy()
-    units = out["factor_unit"]
+    values = out["factor_value"]
+    units = pd.Series(out["factor_unit"])
     if model.fire:
         species_unit = QUANTITIES[main_q][1]  # e.g. g CO2-C kg-1 dm
         gef = values * _unit_scale(units, species_unit, convention)
         basis_t = model.evaluate(area, second, gef)  # Eq. 2.8
         basis_species = species_unit.split()[1]
         out["area_basis_ha"] = area
-        out["emission_basis"] = _constant(f"t {basis_species}", len(out))
+        out["emission_basis"] = _constant(f"t {basis_species}", out.n)
         out["emission_basis_t"] = basis_t
         to_gas = basis_ratio(basis_species, gas, convention)
         out["emission_t"] = basis_t * to_gas
         # emission_t = area_ha x parameter_value (fuel) x factor_value x conversion
-        fuel_scale = second / np.where(out["parameter_value"].to_numpy() == 0, 1.0, out["parameter_value"].to_numpy())
+        fuel_scale = second / np.where(out["parameter_value"] == 0, 1.0, out["parameter_value"])
         per_unit_inputs = model.evaluate(1.0, 1.0, 1.0)  # Eq. 2.8 on one of each input: the 10^-3 (g kg-1 -> t t-1)
         out["conversion"] = per_unit_inputs * _unit_scale(units, species_unit, convention) * fuel_scale * to_gas
         return out

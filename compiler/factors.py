@@ -248,10 +248,10 @@ def apply_overrides(frame: pd.DataFrame, overrides: pd.DataFrame, quantity: str)
     """
     result = frame["factor_id"].to_numpy(dtype=object).copy()
     if overrides is None or overrides.empty:
-        return pd.Series(result, index=frame.index)
+        return pd.Series(result, index=frame.index, dtype=object)  # ids and NaN: no text column to build
     rows = overrides[overrides["quantity"] == quantity]
     if rows.empty:
-        return pd.Series(result, index=frame.index)
+        return pd.Series(result, index=frame.index, dtype=object)  # ids and NaN: no text column to build
     order = rows.assign(_level=(rows["region"] != "").astype(int), _weight=rows["_weight"]).sort_values(
         ["_level", "_weight"], kind="stable")
     years = frame["year"].to_numpy()
@@ -266,7 +266,7 @@ def apply_overrides(frame: pd.DataFrame, overrides: pd.DataFrame, quantity: str)
             mask &= frame["region"].to_numpy() == ov["region"]
         mask &= (years >= ov["first_year"]) & (years <= ov["last_year"])
         result[mask] = ov["override_id"]
-    return pd.Series(result, index=frame.index)
+    return pd.Series(result, index=frame.index, dtype=object)
 
 
 def override_weight(overrides: pd.DataFrame) -> pd.Series:
