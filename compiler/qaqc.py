@@ -964,8 +964,13 @@ def check_factors_not_checked(result, thresholds: QaqcThresholds) -> list[Findin
 # --- 11: completeness and the insignificance of NE ------------------------------------------------------------
 
 
-def _expected_pathways(result) -> pd.DataFrame:
-    """Every input record x the pathways its soil status needs in the factor set (pathway_coverage.csv)."""
+def _expected_pathways(result):
+    """Every input record x the pathways its soil status needs in the factor set (pathway_coverage.csv).
+
+    Yields ``(records, pathway)``: a table of input records (``input_file``, the record column, ``input_row``,
+    ``year``, ``land_use``, ``soil_status``) and one pathway each of them needs. Activity records come from
+    ``result.activity``, fire records from the fire rows of the results table.
+    """
     coverage = result.library.coverage
     coverage = coverage[coverage["factor_set"] == result.settings.factor_set][["soil_status", "pathway"]]
     act, em = result.activity, result.emissions
@@ -974,12 +979,16 @@ def _expected_pathways(result) -> pd.DataFrame:
         "input_file": Path(result.settings.activity).name,
         record: act.index.to_numpy() if record == "record_id" else act["_row"].to_numpy(),
         "input_row": act["_row"].to_numpy(), "year": act["year"].to_numpy(),
-        "land_use": act["land_use"].to_numpy(), "soil_status": act["soil_status"].to_numpy()})
-    soil = soil.merge(coverage, on="soil_status")
-    fire_rows = em[em["pathway"].str.startswith("fire_")][
-        list(dict.fromkeys(["input_file", record, "input_row", "year", "land_use"]))].drop_duplicates()
-    fire = fire_rows.assign(soil_status="fire").merge(coverage, on="soil_status")
-    return pd.concat([soil, fire], ignore_index=True)
+        "land_use": act["land_use"].to_numpy(dtype=object), "soil_status": act["soil_status"].to_numpy(dtype=object)})
+    fire_rows = plain(em[em["pathway"].str.startswith("fire_")][
+        list(dict.fromkeys(["input_file", record, "input_row", "year", "land_use"]))].drop_duplicates())
+    fire = fire_rows.assign(soil_status="fire").reset_index(drop=True)
+    for records in (soil, fire):
+        status = records["soil_status"].to_numpy(dtype=object)
+        for soil_status, pathway in coverage.itertuples(index=False):
+            at = np.flatnonzero(status == soil_status)
+            if len(at):
+                yield records.iloc[at], pathway
 
 
 def check_completeness(result, thresholds: QaqcThresholds) -> list[Finding]:
@@ -989,16 +998,45 @@ def check_completeness(result, thresholds: QaqcThresholds) -> list[Finding]:
     (``factor_tables/pathway_coverage.csv``), and each fire row times the fire pathways. Present: an
     estimate row with a finite ``emission_t``, or a notation row. One finding per land use, soil
     status and pathway, with the years.
+
+    Expected and present rows are matched on one integer key per (input file, record, pathway): a
+    sorted search, not a merge of two tables of every stratum-year and pathway.
     """
-    expected = _expected_pathways(result)
-    if expected.empty:
-        return []
     em = result.emissions
     record = _record(em)
-    observed = em[["input_file", record, "pathway", "notation_key", "emission_t"]]
-    merged = expected.merge(observed, on=["input_file", record, "pathway"], how="left", indicator=True)
-    missing = merged[(merged["_merge"] == "left_only")
-                     | ((merged["notation_key"] == "") & ~np.isfinite(merged["emission_t"].astype(float)))]
+    file_codes, files = pd.factorize(em["input_file"])
+    path_codes, pathways = pd.factorize(em["pathway"])
+    file_of = {f: i for i, f in enumerate(files)}
+    path_of = {p: i for i, p in enumerate(pathways)}
+    records = em[record].to_numpy(dtype=np.int64)
+    span = int(records.max()) + 2 if len(records) else 1
+    width = len(pathways) + 1
+
+    def key(file_code, record_values, pathway_code):
+        return (np.asarray(file_code, dtype=np.int64) * span + record_values) * width + pathway_code
+
+    present = key(file_codes, records, path_codes)
+    bad = (em["notation_key"] == "").to_numpy(dtype=bool) & ~np.isfinite(em["emission_t"].to_numpy(dtype=float))
+    every, failed = np.sort(present), np.sort(present[bad])
+
+    def found(keys, among):
+        at = np.minimum(np.searchsorted(among, keys), max(len(among) - 1, 0))
+        return among[at] == keys if len(among) else np.zeros(len(keys), dtype=bool)
+
+    missing = []
+    for rows, pathway in _expected_pathways(result):
+        if pathway not in path_of or rows.empty:  # no row of the pathway at all: every record misses it
+            missing.append(rows.assign(pathway=pathway))
+            continue
+        codes, names = pd.factorize(rows["input_file"])  # one file, or a few
+        file_code = np.array([file_of.get(f, len(files)) for f in names], dtype=np.int64)[codes]
+        keys = key(file_code, rows[record].to_numpy(dtype=np.int64), path_of[pathway])
+        lacking = ~found(keys, every) | found(keys, failed)
+        if lacking.any():
+            missing.append(rows[lacking].assign(pathway=pathway))
+    if not missing:
+        return []
+    missing = pd.concat(missing, ignore_index=True)
     out = []
     keys = ["input_file", "land_use", "soil_status", "pathway"]
     for (file, land_use, soil_status, pathway), g in missing.groupby(keys, sort=True):  # flagged combinations

@@ -456,6 +456,22 @@ def test_completeness_missing_pathway_is_an_error(demo_result, demo_findings):
     assert len(only(run(with_tables(demo_result, emissions=blank)), "completeness")) == 1
 
 
+def test_completeness_finds_a_fire_row_and_a_pathway_gone_everywhere(demo_result):
+    # [T6.1] the same rule for fire records, and for a pathway with no row left at all (what a merge of
+    # expected and present rows would find; the check matches them on integer keys).
+    em = demo_result.emissions
+    fire = em[em["pathway"] == "fire_co2"].iloc[0]
+    gone = em[~((em["record_id"] == fire["record_id"]) & (em["pathway"] == "fire_co2")
+                & (em["input_file"] == fire["input_file"]))]
+    found = only(run(with_tables(demo_result, emissions=gone)), "completeness")
+    assert len(found) == 1 and "fire fire_co2" in found[0].message and "(1 rows)" in found[0].message
+    nowhere = em[em["pathway"] != "co2_doc"]
+    found = only(run(with_tables(demo_result, emissions=nowhere)), "completeness")
+    assert found and all(" co2_doc has neither" in f.message for f in found)
+    rows = sum(int(f.message.rsplit("(", 1)[1].split()[0]) for f in found)
+    assert rows == int(((em["pathway"] == "co2_doc") & (em["input_file"] == "activity.csv")).sum())
+
+
 def test_category_notation_key_without_reason_is_flagged(demo_result):
     cats = demo_result.categories.copy()
     cell = (cats["category_code"] == "3.B.5.a") & (cats["gas"] == "CO2")
