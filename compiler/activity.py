@@ -31,7 +31,7 @@ import pandas as pd
 
 from .errors import FindingLog
 from .factors import QUANTITIES, override_weight, unit_kind_ok, check_override_conflicts
-from .readers import MAX_LISTED, ROW, printable, read_table
+from .readers import MAX_LISTED, ROW, NoDataRows, printable, read_table
 from .schema import LAND_KEYS, STRATUM_KEYS
 from .settings import Settings
 from .textrules import (FORMAT_OR_NONCHARACTER, LINE_CONTROL, MAX_NAME_CHARS, MAX_NOTE_CHARS,  # noqa: F401
@@ -432,8 +432,19 @@ def validate_columns(raw: pd.DataFrame, spec: list[Column], check: CellChecker, 
     return out
 
 
-def _load(path: Path, sheet: str, spec: list[Column], log: FindingLog, settings: Settings) -> tuple[pd.DataFrame, str]:
-    raw, sheet_name, notes = read_table(path, sheet, settings.max_input_mb, columnar=True)
+def _load(path: Path, sheet: str, spec: list[Column], log: FindingLog, settings: Settings,
+          optional: bool = False) -> tuple[pd.DataFrame, str]:
+    """``path`` read and validated against ``spec``. An ``optional`` input (fires, overrides, review, ...) with a
+    header and no data rows means "none": an empty frame and a note, not an error."""
+    try:
+        raw, sheet_name, notes = read_table(path, sheet, settings.max_input_mb, columnar=True)
+    except NoDataRows as exc:
+        if not optional:
+            raise
+        finding = exc.findings[0]
+        log.add("info", "read", "the file has a header and no data rows: nothing is read from it", file=finding.file,
+                sheet=finding.sheet)
+        return pd.DataFrame(), finding.sheet
     log.extend(notes)
     decimal_comma = any(n.check == "read" and n.found == ";" for n in notes)  # the reader's delimiter note
     check = CellChecker(log, str(path), sheet_name)
@@ -448,7 +459,7 @@ def load_optional(path: Path | None, spec: list[Column], log: FindingLog,
     not given or has no usable rows."""
     if path is None:
         return pd.DataFrame(), None
-    frame, sheet = _load(path, "", spec, log, settings)
+    frame, sheet = _load(path, "", spec, log, settings, optional=True)
     return frame, (None if frame.empty else CellChecker(log, str(path), sheet))
 
 
@@ -531,7 +542,7 @@ def _check_region_spellings(keys: pd.DataFrame, check: CellChecker) -> None:
 def load_fires(settings: Settings, log: FindingLog) -> pd.DataFrame:
     if settings.fires is None:
         return pd.DataFrame()
-    frame, sheet = _load(settings.fires, "", FIRE_COLUMNS, log, settings)
+    frame, sheet = _load(settings.fires, "", FIRE_COLUMNS, log, settings, optional=True)
     if not frame.empty:
         frame.attrs["file"], frame.attrs["sheet"] = str(settings.fires), sheet
         frame["year"] = frame["year"].astype("Int64")
@@ -642,7 +653,7 @@ def load_overrides(settings: Settings, log: FindingLog) -> pd.DataFrame:
 def load_review(settings: Settings, log: FindingLog, register_ids: set[str]) -> pd.DataFrame:
     if settings.factor_review is None:
         return pd.DataFrame()
-    frame, sheet = _load(settings.factor_review, "", REVIEW_COLUMNS, log, settings)
+    frame, sheet = _load(settings.factor_review, "", REVIEW_COLUMNS, log, settings, optional=True)
     if frame.empty:
         return frame
     check = CellChecker(log, str(settings.factor_review), sheet)

@@ -57,6 +57,10 @@ def printable(text) -> str:
     return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in str(text))
 
 
+class NoDataRows(InputError):
+    """The file has a header and no data rows (an optional input may mean "none" by it)."""
+
+
 def _error(message: str, file: str, **where) -> InputError:
     return InputError([Finding("error", "read", message, file=file, **where)])
 
@@ -437,7 +441,7 @@ def _frame_from_rows(rows: list[list[str]], fname: str, sheet: str) -> pd.DataFr
     width = len(header)
     body = rows[1:]
     if not body:
-        raise _error("the file has a header but no data rows", fname, sheet=sheet)
+        raise NoDataRows([Finding("error", "read", "the file has a header but no data rows", file=fname, sheet=sheet)])
     problems = []
     for i, row in enumerate(body):
         extra = row[width:]
