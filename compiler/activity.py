@@ -562,7 +562,7 @@ def check_fires_within_strata(fires: pd.DataFrame, activity: pd.DataFrame, log: 
     """A fire burns at most the area of its stratum: burned_ha <= the activity area of its year, region,
     climate zone, land use and soil status (after gap filling; remaining and converted land together, all
     nutrient statuses, drainage depths and subtypes). Each fire row above it is an error naming both figures.
-    A fire whose stratum has no activity row is not checked here."""
+    A fire whose stratum has no activity row is a warning (its area cannot be compared)."""
     if fires is None or fires.empty or activity is None or activity.empty:
         return
     good = fires[~fires["_bad"]]
@@ -572,7 +572,13 @@ def check_fires_within_strata(fires: pd.DataFrame, activity: pd.DataFrame, log: 
     area = activity.assign(year=activity["year"].astype("int64")).groupby(FIRE_STRATUM, sort=False)["area_ha"].sum()
     available = keys.merge(area.rename("stratum_ha").reset_index(), on=FIRE_STRATUM, how="left")["stratum_ha"]
     available = pd.Series(available.to_numpy(), index=good.index)
-    # A fire in a stratum without activity rows is left alone (the inventory may report fires alone).
+    # A fire in a stratum without activity rows is computed (an inventory may report fires alone), with a
+    # warning: its burnt area is not within any drained or rewetted area of the activity data.
+    alone = good[available.isna().to_numpy()]
+    CellChecker(log, fires.attrs.get("file", ""), fires.attrs.get("sheet", "")).rows(
+        "warning", "fire", "the fire's stratum has no row in the activity data, so its area is not compared",
+        alone, "region", alone["region"].astype(str),
+        "a row of the activity data for the same year, region, climate zone, land use and soil status")
     over = good[available.notna() & (good["burned_ha"] > available)]
     found = pd.Series([f"burned_ha {b:,.6g} ha; the stratum ({y} {r}, {c}, {lu}, {st}) has {a:,.6g} ha"
                        for b, a, y, r, c, lu, st in zip(over["burned_ha"], available[over.index], over["year"],

@@ -397,6 +397,24 @@ def test_distinct_fire_rows_are_not_duplicates(tmp_path, demo_findings):
     assert only(demo_findings, "duplicated_strata") == []
 
 
+@pytest.mark.parametrize("fire, row", [
+    (_fire(climate_zone="tropical", fire_type="prescribed"), 3),  # another climate zone than the stratum
+    (_fire(region="Otherdale"), 3),  # a region without activity rows
+])
+def test_fire_without_an_activity_stratum_is_a_warning(tmp_path, fire, row):
+    # Common practice, no source: a burnt area of organic soil should lie within the drained or rewetted area
+    # reported for its stratum; where the activity data has no such stratum it cannot be compared, so the
+    # fire is computed and flagged for the compiler to look at.
+    settings = write_inventory(tmp_path, [stratum(area_ha=100.0)], extra_inputs={"fires": "fires.csv"})
+    pd.DataFrame([_fire(), fire]).to_csv(tmp_path / "fires.csv", index=False)
+    result = compile_inventory(settings, analyses=False)
+    alone = [f for f in result.finding_list if f.check == "fire"]
+    assert [(f.severity, f.row, f.column) for f in alone] == [("warning", row, "region")]
+    assert "no row in the activity data" in alone[0].message
+    fires = result.emissions[result.emissions["pathway"].astype(str).str.startswith("fire_")]
+    assert set(fires["input_row"]) == {2, 3}  # both fires are still computed
+
+
 def test_sums_strata_to_categories_to_total(demo_result):
     # [T6.1] aggregation from lower to higher reporting levels correct.
     assert only(run(demo_result), "sums") == []
