@@ -122,7 +122,25 @@ def _line(frame: pd.DataFrame) -> pd.Series:
     return line
 
 
-def _on_basis(pathway: np.ndarray, basis: np.ndarray, emission_t: np.ndarray, basis_t: np.ndarray,
+class _Coded:
+    """A text column held as codes (a small integer per row) that compares like the text: ``coded == text``
+    and ``coded.isin(texts)`` give boolean arrays over the rows (a text array of millions of rows is not made)."""
+
+    def __init__(self, column: pd.Series):
+        self.codes, names = pd.factorize(column)
+        self.index = {str(name): i for i, name in enumerate(names)}
+
+    def __eq__(self, text) -> np.ndarray:  # type: ignore[override]
+        return self.codes == self.index.get(text, -2)
+
+    def isin(self, texts) -> np.ndarray:
+        return np.isin(self.codes, [self.index[t] for t in texts if t in self.index])
+
+    def __len__(self) -> int:
+        return len(self.codes)
+
+
+def _on_basis(pathway: _Coded, basis: _Coded, emission_t: np.ndarray, basis_t: np.ndarray,
               mass_ratios: str) -> np.ndarray:
     """Each row's emission on the mass basis of its pathway's implied factor [t of that basis] (0 elsewhere)."""
     out = np.zeros(len(pathway))
@@ -131,7 +149,7 @@ def _on_basis(pathway: np.ndarray, basis: np.ndarray, emission_t: np.ndarray, ba
         if not at.any():
             continue
         ratio = basis_ratio(GAS_OF_PATHWAY[name], target, mass_ratios)
-        out[at] = np.where(basis[at] == f"t {target}", basis_t[at], emission_t[at] * ratio)
+        out[at] = np.where((basis == f"t {target}")[at], basis_t[at], emission_t[at] * ratio)
     return out
 
 
@@ -150,7 +168,7 @@ def organic_soils_table(emissions: pd.DataFrame, categories: pd.DataFrame, mass_
                                           "emission_basis_t", "notation_key", "category_code"]]
     codes, first = distinct_codes(rows, RAW_KEYS)
     n = len(first)
-    pathway = rows["pathway"].to_numpy(dtype=object)
+    pathway = _Coded(rows["pathway"])
     estimate = (rows["notation_key"] == "").to_numpy(dtype=bool)
     emission_t = rows["emission_t"].to_numpy(dtype=float)
     groups = plain(rows[RAW_KEYS].iloc[first].reset_index(drop=True))
@@ -160,7 +178,7 @@ def organic_soils_table(emissions: pd.DataFrame, categories: pd.DataFrame, mass_
 
     # Area: every stratum row has an on-site CO2 row (estimate or notation key), counted once.
     groups["area_ha"] = total(rows["area_ha"].to_numpy(dtype=float), pathway == "co2_onsite")
-    basis_t = _on_basis(pathway, rows["emission_basis"].to_numpy(dtype=object), emission_t,
+    basis_t = _on_basis(pathway, _Coded(rows["emission_basis"]), emission_t,
                         rows["emission_basis_t"].to_numpy(dtype=float), mass_ratios)
     area_basis = rows["area_basis_ha"].to_numpy(dtype=float)
     for name in SOIL_PATHWAYS:
@@ -171,12 +189,12 @@ def organic_soils_table(emissions: pd.DataFrame, categories: pd.DataFrame, mass_
     measures = {"co2_soil_kt": ("co2_onsite", "co2_doc"), "co2_offsite_kt": (OFFSITE,), "co2_fire_kt": ("fire_co2",),
                 "ch4_kt": ("ch4_soil", "ch4_ditch"), "n2o_kt": ("n2o_soil",)}
     for column, pathways in measures.items():
-        at = estimate & np.isin(pathway, pathways)
+        at = estimate & pathway.isin(pathways)
         groups[column] = total(emission_t, at) / 1000.0
         groups[f"_n_{column}"] = np.bincount(codes[at], minlength=n)
     n2o = estimate & (pathway == "n2o_soil")
     reported = np.full(n, "", dtype=object)
-    where = rows["category_code"].to_numpy(dtype=object)[n2o]
+    where = rows["category_code"][n2o].to_numpy(dtype=object)
     reported[codes[n2o][::-1]] = where[::-1]  # the category of the first N2O row of each combination
     groups["n2o_reported_under"] = reported
 
