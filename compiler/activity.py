@@ -574,8 +574,9 @@ def check_fires_within_strata(fires: pd.DataFrame, activity: pd.DataFrame, log: 
     available = pd.Series(available.to_numpy(), index=good.index)
     # A fire in a stratum without activity rows is computed (an inventory may report fires alone), with a
     # warning: its burnt area is not within any drained or rewetted area of the activity data.
+    check = CellChecker(log, fires.attrs.get("file", ""), fires.attrs.get("sheet", ""))
     alone = good[available.isna().to_numpy()]
-    CellChecker(log, fires.attrs.get("file", ""), fires.attrs.get("sheet", "")).rows(
+    check.rows(
         "warning", "fire", "the fire's stratum has no row in the activity data, so its area is not compared",
         alone, "region", alone["region"].astype(str),
         "a row of the activity data for the same year, region, climate zone, land use and soil status")
@@ -584,7 +585,7 @@ def check_fires_within_strata(fires: pd.DataFrame, activity: pd.DataFrame, log: 
                        for b, a, y, r, c, lu, st in zip(over["burned_ha"], available[over.index], over["year"],
                                                          over["region"], over["climate_zone"], over["land_use"],
                                                          over["soil_status"])], index=over.index, dtype=object)
-    CellChecker(log, fires.attrs.get("file", ""), fires.attrs.get("sheet", "")).rows(
+    check.rows(
         "error", "fire", "the fire burns more hectares than its stratum holds", over, "burned_ha", found,
         "at most the stratum's area_ha in the activity data (same year, region, climate zone, land use and soil "
         "status)", cut=False)

@@ -207,10 +207,8 @@ def _coded(values: np.ndarray, codes: np.ndarray) -> pd.Categorical:
 
 def _as_categories(frame: pd.DataFrame, columns: list[str]) -> pd.DataFrame:
     """``frame`` with its text columns among ``columns`` as categoricals (the engine gathers codes, not text)."""
-    text = {c: frame[c].astype("category") for c in columns
-            if c in frame and not isinstance(frame[c].dtype, pd.CategoricalDtype)
-            and (pd.api.types.is_string_dtype(frame[c].dtype) or frame[c].dtype == object)}
-    return frame.assign(**text) if text else frame
+    coded = compact(frame[[c for c in columns if c in frame]])
+    return frame.assign(**{c: coded[c] for c in coded.columns})
 
 
 def _concat(pieces: list[pd.DataFrame]) -> pd.DataFrame:

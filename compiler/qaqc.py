@@ -51,7 +51,7 @@ import numpy as np
 import pandas as pd
 
 from .schema import CELL_KEYS as CELL
-from .schema import LAND_KEYS
+from .schema import LAND_KEYS, plain
 from .schema import SERIES_KEYS as STRATUM_SERIES_KEYS
 from .row_model import ROW_MODELS, by_pathway
 from .errors import Finding, InputError, findings_table  # noqa: F401 (findings_table: part of this module's API)
@@ -59,7 +59,6 @@ from .factors import QUANTITIES, unit_kind_ok
 from .offsite_peat import OFFSITE_PATHWAY
 from .readers import MAX_LISTED
 from .units import basis_ratio, parse_unit, tonnes_of_gas_per_unit
-from .schema import plain
 
 # 2006 IPCC Guidelines category 3.B Land, or sector 4 of the transparency framework's tables (allocation = "etf"):
 # "the land sector" of the insignificance rule
@@ -1025,7 +1024,7 @@ def check_completeness(result, thresholds: QaqcThresholds) -> list[Finding]:
 
     missing = []
     for rows, pathway in _expected_pathways(result):
-        if pathway not in path_of or rows.empty:  # no row of the pathway at all: every record misses it
+        if pathway not in path_of:  # no row of the pathway at all: every record misses it
             missing.append(rows.assign(pathway=pathway))
             continue
         codes, names = pd.factorize(rows["input_file"])  # one file, or a few

@@ -61,8 +61,8 @@ class NoDataRows(InputError):
     """The file has a header and no data rows (an optional input may mean "none" by it)."""
 
 
-def _error(message: str, file: str, **where) -> InputError:
-    return InputError([Finding("error", "read", message, file=file, **where)])
+def _error(message: str, file: str, kind: type[InputError] = InputError, **where) -> InputError:
+    return kind([Finding("error", "read", message, file=file, **where)])
 
 
 def check_size(path: Path, max_mb: float) -> None:
@@ -441,7 +441,7 @@ def _frame_from_rows(rows: list[list[str]], fname: str, sheet: str) -> pd.DataFr
     width = len(header)
     body = rows[1:]
     if not body:
-        raise NoDataRows([Finding("error", "read", "the file has a header but no data rows", file=fname, sheet=sheet)])
+        raise _error("the file has a header but no data rows", fname, NoDataRows, sheet=sheet)
     problems = []
     for i, row in enumerate(body):
         extra = row[width:]
